@@ -1,0 +1,7 @@
+"""covergrid: satellite-constellation coverage analysis."""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+__all__ = ["__version__"]
