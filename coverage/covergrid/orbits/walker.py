@@ -1,0 +1,507 @@
+"""Constellation element sets: the :class:`ElementSet` container and Walker patterns.
+
+Every later stage (propagation, visibility, metrics) takes an :class:`ElementSet`: mean
+Keplerian elements of ``n`` satellites on dimension ``sat`` in km and radians, plus one
+unique name per satellite.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any, Literal
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from covergrid.constants import EARTH_RADIUS_KM, MU_EARTH_KM3_S2, TWO_PI
+from covergrid.errors import ElementError
+from covergrid.orbits.elements import (
+    cartesian_to_kepler,
+    true_to_mean,
+    validate_elements,
+    validate_state,
+)
+
+__all__ = [
+    "WALKER_PATTERNS",
+    "ElementSet",
+    "from_keplerian",
+    "from_state_vectors",
+    "walker",
+    "walker_delta",
+    "walker_star",
+]
+
+_ELEMENT_FIELDS = ("a_km", "e", "i_rad", "raan_rad", "argp_rad", "M_rad")
+
+
+@dataclass(frozen=True)
+class ElementSet:
+    """Mean Keplerian elements of n satellites on dimension ``sat`` [km, rad].
+
+    Parameters
+    ----------
+    a_km : array_like, shape (n,)
+        Semi-major axis [km].
+    e : array_like, shape (n,)
+        Eccentricity, ``0 <= e < 1`` [unitless].
+    i_rad : array_like, shape (n,)
+        Inclination [rad].
+    raan_rad : array_like, shape (n,)
+        Right ascension of the ascending node [rad].
+    argp_rad : array_like, shape (n,)
+        Argument of perigee [rad].
+    M_rad : array_like, shape (n,)
+        Mean anomaly at the epoch [rad].
+    ids : sequence of str, length n
+        Unique satellite names.
+
+    Raises
+    ------
+    ElementError
+        If the lengths differ, an id repeats, or the elements fail
+        :func:`~covergrid.orbits.elements.validate_elements` (closed orbit, finite
+        values, perigee above the Earth's equatorial radius).
+
+    Notes
+    -----
+    The arrays are stored as read-only float64 copies, so a set cannot change after it
+    has been validated.
+    """
+
+    a_km: np.ndarray
+    e: np.ndarray
+    i_rad: np.ndarray
+    raan_rad: np.ndarray
+    argp_rad: np.ndarray
+    M_rad: np.ndarray
+    ids: tuple[str, ...]
+
+    def __post_init__(self) -> None:
+        ids = self.ids
+        if isinstance(ids, str):
+            raise ElementError(f"must be a sequence of names, got the string {ids!r}", "ids")
+        ids = tuple(str(s) for s in ids)
+        n = len(ids)
+        for name in _ELEMENT_FIELDS:
+            arr = np.array(getattr(self, name), dtype=np.float64)  # copy
+            if arr.ndim == 0:
+                arr = np.full(n, float(arr))
+            if arr.ndim != 1:
+                raise ElementError(f"must be one-dimensional, got shape {arr.shape}", name)
+            if arr.shape[0] != n:
+                raise ElementError(
+                    f"has {arr.shape[0]} values but there are {n} ids; lengths must match",
+                    name,
+                )
+            arr.setflags(write=False)
+            object.__setattr__(self, name, arr)
+        seen: set[str] = set()
+        for s in ids:
+            if s in seen:
+                raise ElementError(f"must be unique, {s!r} appears more than once", "ids")
+            seen.add(s)
+        object.__setattr__(self, "ids", ids)
+        validate_elements(
+            self.a_km,
+            self.e,
+            i_rad=self.i_rad,
+            raan_rad=self.raan_rad,
+            argp_rad=self.argp_rad,
+            anomaly_rad=self.M_rad,
+            ids=ids,
+            require_closed=True,
+            min_perigee_km=EARTH_RADIUS_KM,
+        )
+
+    def __len__(self) -> int:
+        """Return the number of satellites."""
+        return len(self.ids)
+
+    @staticmethod
+    def concat(sets: Sequence[ElementSet]) -> ElementSet:
+        """Join several sets (shells, groups) into one constellation.
+
+        Parameters
+        ----------
+        sets : sequence of ElementSet
+            At least one set; ids must stay unique across all of them.
+
+        Returns
+        -------
+        ElementSet
+            The satellites of all sets, in order.
+        """
+        sets = list(sets)
+        if not sets:
+            raise ElementError("needs at least one ElementSet to join, got none", "sets")
+        for k, s in enumerate(sets):
+            if not isinstance(s, ElementSet):
+                raise ElementError(f"item {k} must be an ElementSet, got {type(s).__name__}")
+        cols = {f: np.concatenate([getattr(s, f) for s in sets]) for f in _ELEMENT_FIELDS}
+        ids = tuple(i for s in sets for i in s.ids)
+        return ElementSet(**cols, ids=ids)
+
+    def subset(self, index: Any) -> ElementSet:
+        """Select satellites, e.g. to drop one.
+
+        Parameters
+        ----------
+        index : int, slice, array of int or bool, or sequence of ids
+            Positions, a boolean mask of length n, or satellite names.
+
+        Returns
+        -------
+        ElementSet
+            The selected satellites (a single int still gives a set of one).
+        """
+        if isinstance(index, str):
+            index = [index]
+        if isinstance(index, Sequence) and index and all(isinstance(x, str) for x in index):
+            pos = {s: k for k, s in enumerate(self.ids)}
+            missing = [s for s in index if s not in pos]
+            if missing:
+                raise ElementError(f"unknown satellite ids {missing}", "ids")
+            index = [pos[s] for s in index]
+        if isinstance(index, (int, np.integer)):
+            index = [int(index)]
+        idx = np.arange(len(self))[index]
+        return ElementSet(
+            **{f: getattr(self, f)[idx] for f in _ELEMENT_FIELDS},
+            ids=tuple(self.ids[k] for k in np.atleast_1d(idx)),
+        )
+
+
+# --------------------------------------------------------------------------------------
+# Walker patterns
+# --------------------------------------------------------------------------------------
+
+
+def _check_tpf(total: int, planes: int, phasing: int) -> int:
+    for name, val in (("total", total), ("planes", planes), ("phasing", phasing)):
+        if isinstance(val, bool) or not isinstance(val, (int, np.integer)):
+            raise ElementError(f"must be an integer, got {val!r}", name)
+    if total < 1:
+        raise ElementError(f"must be >= 1, got {total}", "total")
+    if planes < 1 or total % planes:
+        divisors = [d for d in range(1, total + 1) if total % d == 0]
+        raise ElementError(
+            f"must divide total = {total}, got {planes}; allowed: {divisors}", "planes"
+        )
+    if not 0 <= phasing < planes:
+        raise ElementError(
+            f"must satisfy 0 <= phasing < planes = {planes}, got {phasing}; "
+            f"allowed: 0..{planes - 1}",
+            "phasing",
+        )
+    return total // planes
+
+
+def _walker(
+    spread_rad: float,
+    total: int,
+    planes: int,
+    phasing: int,
+    *,
+    a_km: float,
+    e: float,
+    i_rad: float,
+    raan0_rad: float,
+    argp_rad: float,
+    M0_rad: float,
+    id_prefix: str,
+) -> ElementSet:
+    per_plane = _check_tpf(total, planes, phasing)
+    j = np.repeat(np.arange(planes), per_plane)  # plane index of each satellite
+    k = np.tile(np.arange(per_plane), planes)  # slot index within the plane
+    raan = np.mod(raan0_rad + spread_rad * j / planes, TWO_PI)
+    M = np.mod(M0_rad + TWO_PI * k / per_plane + TWO_PI * phasing * j / total, TWO_PI)
+    wp, ws = max(2, len(str(planes))), max(2, len(str(per_plane)))
+    ids = tuple(
+        f"{id_prefix}-P{jj + 1:0{wp}d}-{kk + 1:0{ws}d}" for jj, kk in zip(j, k, strict=True)
+    )
+    n = total
+    return ElementSet(
+        a_km=np.full(n, float(a_km)),
+        e=np.full(n, float(e)),
+        i_rad=np.full(n, float(i_rad)),
+        raan_rad=raan,
+        argp_rad=np.full(n, float(argp_rad)),
+        M_rad=M,
+        ids=ids,
+    )
+
+
+_WALKER_DOC = """
+
+    Parameters
+    ----------
+    total : int
+        Number of satellites T.
+    planes : int
+        Number of orbit planes P; must divide T.
+    phasing : int
+        Phasing factor F, ``0 <= F < P``.
+    a_km : float
+        Semi-major axis of every satellite [km].
+    e : float, optional
+        Eccentricity of every satellite [unitless].
+    i_rad : float
+        Inclination [rad].
+    raan0_rad : float, optional
+        Right ascension of the ascending node of plane 0 [rad].
+    argp_rad : float, optional
+        Argument of perigee of every satellite [rad].
+    M0_rad : float, optional
+        Mean anomaly of slot 0 in plane 0 [rad].
+    id_prefix : str, optional
+        Prefix of the ids ``"<prefix>-P<plane>-<slot>"``, both counted from 1 and
+        zero-padded to at least two digits (``"S-P01-03"``).
+
+    Returns
+    -------
+    ElementSet
+        T satellites ordered plane by plane, slot by slot.
+
+    Notes
+    -----
+    Walker's T/P/F notation [1]_: with ``S = T/P`` satellites per plane, satellite
+    ``k`` of plane ``j`` has
+
+    .. math:: u_{jk} = u_0 + \\frac{2\\pi k}{S} + \\frac{2\\pi F j}{T}
+
+    where ``u = argp + M`` is the along-track angle from the node. For circular orbits
+    this is the argument of latitude. For an eccentric template the spacing is applied
+    to the mean anomaly (``M = M0 + 2 pi k / S + 2 pi F j / T`` with the common
+    ``argp``), which keeps the satellites evenly spaced in time.
+
+    References
+    ----------
+    .. [1] J. G. Walker, "Satellite constellations", Journal of the British
+       Interplanetary Society, vol. 37, pp. 559-572, 1984.
+    """
+
+
+def walker_delta(
+    total: int,
+    planes: int,
+    phasing: int,
+    *,
+    a_km: float,
+    e: float = 0.0,
+    i_rad: float,
+    raan0_rad: float = 0.0,
+    argp_rad: float = 0.0,
+    M0_rad: float = 0.0,
+    id_prefix: str = "S",
+) -> ElementSet:
+    return _walker(
+        TWO_PI,
+        total,
+        planes,
+        phasing,
+        a_km=a_km,
+        e=e,
+        i_rad=i_rad,
+        raan0_rad=raan0_rad,
+        argp_rad=argp_rad,
+        M0_rad=M0_rad,
+        id_prefix=id_prefix,
+    )
+
+
+walker_delta.__doc__ = (
+    "Build a Walker delta pattern T/P/F: planes spread over 360 degrees of RAAN.\n\n"
+    "    Plane j has RAAN ``raan0 + 2 pi j / P``." + _WALKER_DOC
+)
+
+
+def walker_star(
+    total: int,
+    planes: int,
+    phasing: int,
+    *,
+    a_km: float,
+    e: float = 0.0,
+    i_rad: float,
+    raan0_rad: float = 0.0,
+    argp_rad: float = 0.0,
+    M0_rad: float = 0.0,
+    id_prefix: str = "S",
+) -> ElementSet:
+    return _walker(
+        np.pi,
+        total,
+        planes,
+        phasing,
+        a_km=a_km,
+        e=e,
+        i_rad=i_rad,
+        raan0_rad=raan0_rad,
+        argp_rad=argp_rad,
+        M0_rad=M0_rad,
+        id_prefix=id_prefix,
+    )
+
+
+walker_star.__doc__ = (
+    "Build a Walker star pattern T/P/F: planes spread over 180 degrees of RAAN.\n\n"
+    "    Plane j has RAAN ``raan0 + pi j / P`` (near-polar planes whose ascending and\n"
+    "    descending halves together cover all longitudes)." + _WALKER_DOC
+)
+
+WALKER_PATTERNS = {"delta": walker_delta, "star": walker_star}
+
+
+def walker(
+    pattern: Literal["delta", "star"],
+    total: int,
+    planes: int,
+    phasing: int,
+    **kwargs: Any,
+) -> ElementSet:
+    """Build a Walker pattern by name (see :func:`walker_delta`, :func:`walker_star`).
+
+    Parameters
+    ----------
+    pattern : {"delta", "star"}
+        Which pattern.
+    total, planes, phasing : int
+        Walker T/P/F.
+    **kwargs
+        Keyword arguments of :func:`walker_delta` (``a_km``, ``i_rad``, ...).
+
+    Returns
+    -------
+    ElementSet
+        The constellation.
+    """
+    try:
+        build = WALKER_PATTERNS[pattern]
+    except (KeyError, TypeError):
+        raise ElementError(
+            f"unknown Walker pattern {pattern!r}; allowed: {sorted(WALKER_PATTERNS)}", "pattern"
+        ) from None
+    return build(total, planes, phasing, **kwargs)
+
+
+# --------------------------------------------------------------------------------------
+# Other sources of element sets
+# --------------------------------------------------------------------------------------
+
+
+def from_state_vectors(
+    r_km: ArrayLike,
+    v_km_s: ArrayLike,
+    ids: Sequence[str],
+    *,
+    mu_km3_s2: float = MU_EARTH_KM3_S2,
+) -> ElementSet:
+    """Build an element set from inertial positions and velocities.
+
+    Parameters
+    ----------
+    r_km : array_like, shape (n, 3)
+        Positions [km].
+    v_km_s : array_like, shape (n, 3)
+        Velocities [km/s].
+    ids : sequence of str, length n
+        Unique satellite names.
+    mu_km3_s2 : float, optional
+        Gravitational parameter [km^3/s^2].
+
+    Returns
+    -------
+    ElementSet
+        Osculating elements taken as the mean elements at the epoch.
+
+    Notes
+    -----
+    Uses :func:`~covergrid.orbits.elements.cartesian_to_kepler` (Vallado, Fundamentals
+    of Astrodynamics and Applications, 5th ed., Algorithm 9) and its special cases:
+    circular orbits get ``argp = 0`` and the argument of latitude as anomaly, equatorial
+    ones ``raan = 0`` and the longitude of periapsis as ``argp``, circular equatorial
+    ones the true longitude as anomaly, so ``raan + argp + M`` always carries the
+    along-track angle. The true anomaly is converted to mean anomaly. Open orbits
+    (``e >= 1``) are rejected.
+    """
+    r = np.asarray(r_km, dtype=np.float64)
+    v = np.asarray(v_km_s, dtype=np.float64)
+    ids = tuple(ids)
+    if r.ndim != 2 or r.shape[1] != 3:
+        raise ElementError(f"must have shape (n, 3), got shape {r.shape}", "position_km")
+    if v.shape != r.shape:
+        raise ElementError(
+            f"must have the shape of position_km {r.shape}, got shape {v.shape}",
+            "velocity_km_s",
+        )
+    if len(ids) != r.shape[0]:
+        raise ElementError(f"has {len(ids)} names for {r.shape[0]} states", "ids")
+    validate_state(r, v, ids=ids)
+    k = cartesian_to_kepler(r, v, mu_km3_s2)
+    validate_elements(k.a_km, k.e, ids=ids, require_closed=True, min_perigee_km=None)
+    return ElementSet(
+        a_km=k.a_km,
+        e=k.e,
+        i_rad=k.i_rad,
+        raan_rad=k.raan_rad,
+        argp_rad=k.argp_rad,
+        M_rad=np.mod(true_to_mean(k.nu_rad, k.e), TWO_PI),
+        ids=ids,
+    )
+
+
+def from_keplerian(
+    a_km: ArrayLike,
+    e: ArrayLike,
+    i_rad: ArrayLike,
+    raan_rad: ArrayLike,
+    argp_rad: ArrayLike,
+    *,
+    true_anomaly_rad: ArrayLike | None = None,
+    mean_anomaly_rad: ArrayLike | None = None,
+    ids: Sequence[str],
+) -> ElementSet:
+    """Build an element set from Keplerian elements with either anomaly.
+
+    Parameters
+    ----------
+    a_km, e, i_rad, raan_rad, argp_rad : array_like
+        Elements, scalars or arrays of length n (broadcast to n) [km, unitless, rad].
+    true_anomaly_rad : array_like, optional
+        True anomaly [rad]; give exactly one of the two anomalies.
+    mean_anomaly_rad : array_like, optional
+        Mean anomaly [rad].
+    ids : sequence of str, length n
+        Unique satellite names.
+
+    Returns
+    -------
+    ElementSet
+        The satellites; a true anomaly is converted to mean anomaly with
+        :func:`~covergrid.orbits.elements.true_to_mean`.
+    """
+    if (true_anomaly_rad is None) == (mean_anomaly_rad is None):
+        raise ElementError(
+            "give exactly one of true_anomaly_rad and mean_anomaly_rad, got "
+            + ("both" if true_anomaly_rad is not None else "neither"),
+            "anomaly",
+        )
+    ids = tuple(ids)
+    n = len(ids)
+    anomaly = true_anomaly_rad if mean_anomaly_rad is None else mean_anomaly_rad
+    names = ("a_km", "e", "i_rad", "raan_rad", "argp_rad", "anomaly_rad")
+    cols = []
+    for name, val in zip(names, (a_km, e, i_rad, raan_rad, argp_rad, anomaly), strict=True):
+        arr = np.asarray(val, dtype=np.float64)
+        try:
+            cols.append(np.broadcast_to(arr, (n,)).copy())
+        except ValueError:
+            raise ElementError(
+                f"shape {arr.shape} does not fit {n} satellites (scalar or length {n})", name
+            ) from None
+    a, ecc, inc, raan, argp, anom = cols
+    validate_elements(a, ecc, i_rad=inc, raan_rad=raan, argp_rad=argp, anomaly_rad=anom, ids=ids)
+    M = anom if mean_anomaly_rad is not None else true_to_mean(anom, ecc)
+    return ElementSet(a_km=a, e=ecc, i_rad=inc, raan_rad=raan, argp_rad=argp, M_rad=M, ids=ids)
