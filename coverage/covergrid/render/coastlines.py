@@ -1,0 +1,227 @@
+"""Offline coastlines: decode the bundled Natural Earth land TopoJSON.
+
+The package ships ``render/data/land-110m.json`` and ``land-50m.json`` (Natural Earth land polygons,
+public domain, in the TopoJSON form of the ``world-atlas`` package; see ``data/ATTRIBUTION.md``).
+This module decodes them with numpy alone and hands shapely geometries to the map code, so no
+figure ever needs cartopy's downloader or a network connection.
+
+TopoJSON in brief (the parts used here): the file holds a list of *arcs*, each a polyline whose
+first position is absolute and whose later positions are deltas from the previous one, all in
+integer *quantized* units; the *transform* maps an integer position ``(x, y)`` to
+``(x * scale_x + translate_x, y * scale_y + translate_y)`` in degrees of longitude and latitude.
+A polygon ring is a list of arc indices; a negative index ``i`` means arc ``~i`` (``-1 - i``)
+taken in reverse. Consecutive arcs of a ring share their joining position, which is kept once.
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+from importlib import resources
+
+import numpy as np
+
+__all__ = [
+    "RESOLUTIONS",
+    "coastline_geometry",
+    "coastline_polylines",
+    "land_geometry",
+    "land_polygons",
+]
+
+#: Bundled resolutions (Natural Earth scale names) and their files in ``render/data``.
+RESOLUTIONS: dict[str, str] = {"110m": "land-110m.json", "50m": "land-50m.json"}
+
+# Positions closer than this to the antimeridian or to the file's southern edge lie on a cut that
+# Natural Earth makes to keep polygons inside (-180, 180) x (-90, 90); such edges are not coast.
+# One quantization step is 360/99999 deg = 3.6e-3 deg, so 1e-6 deg only matches exact edge values.
+_ON_EDGE_DEG = 1e-6
+
+
+def _check_resolution(resolution: str) -> str:
+    if resolution not in RESOLUTIONS:
+        raise ValueError(
+            f"coastline resolution {resolution!r} is not bundled; "
+            f"choose one of {sorted(RESOLUTIONS)}"
+        )
+    return RESOLUTIONS[resolution]
+
+
+@functools.lru_cache(maxsize=None)
+def _read_topology(resolution: str) -> dict:
+    name = _check_resolution(resolution)
+    text = resources.files("covergrid.render").joinpath("data", name).read_text("utf-8")
+    return json.loads(text)
+
+
+def _decode_arcs(topology: dict) -> list[np.ndarray]:
+    """Decode quantized, delta-encoded TopoJSON arcs into longitude/latitude polylines.
+
+    Parameters
+    ----------
+    topology : dict
+        A parsed TopoJSON ``Topology`` with ``arcs`` and ``transform``.
+
+    Returns
+    -------
+    list of numpy.ndarray
+        One ``(n_points, 2)`` array per arc: longitude, latitude [deg].
+
+    Notes
+    -----
+    Implements the arc decoding of the TopoJSON Format Specification 1.0 (sec. 2.1.5 transforms,
+    sec. 2.2 arcs): positions are the running sum of the deltas, then scaled and translated.
+    """
+    transform = topology["transform"]
+    scale = np.asarray(transform["scale"], dtype=float)
+    translate = np.asarray(transform["translate"], dtype=float)
+    return [
+        np.cumsum(np.asarray(arc, dtype=np.int64), axis=0) * scale + translate
+        for arc in topology["arcs"]
+    ]
+
+
+def _ring(arcs: list[np.ndarray], indices: list[int]) -> np.ndarray:
+    """Join the arcs of one ring, reversing negative indices and dropping shared positions."""
+    parts = []
+    for n, index in enumerate(indices):
+        arc = arcs[index] if index >= 0 else arcs[~index][::-1]
+        parts.append(arc if n == 0 else arc[1:])
+    return np.concatenate(parts, axis=0)
+
+
+@functools.lru_cache(maxsize=None)
+def land_polygons(resolution: str = "110m") -> tuple[tuple[np.ndarray, ...], ...]:
+    """Land polygons as rings of longitude/latitude positions.
+
+    Parameters
+    ----------
+    resolution : {"110m", "50m"}
+        Natural Earth scale: 1:110 million (small, for world maps) or 1:50 million.
+
+    Returns
+    -------
+    tuple of tuple of numpy.ndarray
+        One entry per polygon: its exterior ring then any holes, each a closed ``(n, 2)`` array
+        (first position equals last) of longitude [deg] in [-180, 180] and latitude [deg].
+
+    Raises
+    ------
+    ValueError
+        If ``resolution`` is not bundled.
+    """
+    topology = _read_topology(resolution)
+    arcs = _decode_arcs(topology)
+    polygons = []
+    for geometry in topology["objects"]["land"]["geometries"]:
+        if geometry["type"] == "Polygon":
+            members = [geometry["arcs"]]
+        elif geometry["type"] == "MultiPolygon":
+            members = geometry["arcs"]
+        else:  # pragma: no cover - the bundled files hold only (multi)polygons
+            raise ValueError(f"unexpected TopoJSON geometry type {geometry['type']!r}")
+        for rings in members:
+            polygons.append(tuple(_ring(arcs, ring) for ring in rings))
+    return tuple(polygons)
+
+
+@functools.lru_cache(maxsize=None)
+def coastline_polylines(resolution: str = "110m") -> tuple[np.ndarray, ...]:
+    """Coastlines as open polylines: the land rings without the map-edge cuts.
+
+    Edges lying on the antimeridian (both ends at longitude -180 or both at +180), stepping across
+    it (longitude change above 180 deg) or running along the file's southern edge (Antarctica is
+    cut there) are map artefacts rather than coast; the rings are broken at them so a drawn
+    coastline shows no line at 180 deg east, no streak across the map and no line along its
+    bottom.
+
+    Parameters
+    ----------
+    resolution : {"110m", "50m"}
+        Natural Earth scale.
+
+    Returns
+    -------
+    tuple of numpy.ndarray
+        ``(n, 2)`` arrays of longitude, latitude [deg], each with at least two positions.
+    """
+    south_edge_deg = float(_read_topology(resolution)["bbox"][1])
+    lines: list[np.ndarray] = []
+    for polygon in land_polygons(resolution):
+        for ring in polygon:
+            lon, lat = ring[:, 0], ring[:, 1]
+            on_meridian = (np.abs(np.abs(lon) - 180.0) < _ON_EDGE_DEG) & (
+                np.abs(lon - np.roll(lon, -1)) < _ON_EDGE_DEG
+            )
+            on_south = (np.abs(lat - south_edge_deg) < _ON_EDGE_DEG) & (
+                np.abs(np.roll(lat, -1) - south_edge_deg) < _ON_EDGE_DEG
+            )
+            # A ring may also step across the antimeridian (-180 -> +179.99): not drawable as one
+            # edge in longitude/latitude, and it follows the cut, so it is dropped too.
+            jump = np.abs(lon - np.roll(lon, -1)) > 180.0
+            cut = (on_meridian | on_south | jump)[:-1]  # edge n joins position n and n + 1
+            if not cut.any():
+                lines.append(ring)
+                continue
+            # Rotate the closed ring so that it starts just after a cut edge, then split at cuts.
+            first = int(np.flatnonzero(cut)[0]) + 1
+            open_ring = ring[:-1]
+            rolled = np.roll(open_ring, -first, axis=0)
+            rolled = np.concatenate([rolled, rolled[:1]], axis=0)
+            rolled_cut = np.roll(cut, -first)
+            start = 0
+            for edge in np.flatnonzero(rolled_cut):
+                if edge - start >= 1:
+                    lines.append(rolled[start : edge + 1])
+                start = edge + 1
+            if len(rolled) - 1 - start >= 1:
+                lines.append(rolled[start:])
+    return tuple(lines)
+
+
+@functools.lru_cache(maxsize=None)
+def coastline_geometry(resolution: str = "110m"):
+    """Coastlines as one shapely ``MultiLineString`` in longitude/latitude degrees.
+
+    Parameters
+    ----------
+    resolution : {"110m", "50m"}
+        Natural Earth scale.
+
+    Returns
+    -------
+    shapely.MultiLineString
+        Coordinates are longitude, latitude [deg] (plate carree).
+    """
+    import shapely
+
+    return shapely.MultiLineString([line for line in coastline_polylines(resolution)])
+
+
+@functools.lru_cache(maxsize=None)
+def land_geometry(resolution: str = "110m"):
+    """Land as one shapely geometry in longitude/latitude degrees (for a light fill).
+
+    A few bundled rings touch themselves after quantization (a handful of positions near
+    Chukotka, Fiji and the Antarctic cut); each polygon is repaired with ``shapely.make_valid``
+    so that fills render cleanly.
+
+    Parameters
+    ----------
+    resolution : {"110m", "50m"}
+        Natural Earth scale.
+
+    Returns
+    -------
+    shapely.MultiPolygon
+        Each part a valid polygon (parts may touch); coordinates are longitude, latitude [deg]
+        (plate carree).
+    """
+    import shapely
+
+    polygons = [shapely.Polygon(rings[0], holes=rings[1:]) for rings in land_polygons(resolution)]
+    repaired = shapely.make_valid(np.array(polygons, dtype=object))
+    # make_valid may return collections holding slivers of lower dimension; keep the areas.
+    parts = shapely.get_parts(shapely.get_parts(repaired))
+    keep = shapely.get_type_id(parts) == shapely.GeometryType.POLYGON
+    return shapely.MultiPolygon(list(parts[keep]))
