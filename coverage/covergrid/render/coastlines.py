@@ -21,6 +21,8 @@ from importlib import resources
 
 import numpy as np
 
+from covergrid.errors import CovergridError
+
 __all__ = [
     "RESOLUTIONS",
     "coastline_geometry",
@@ -40,14 +42,14 @@ _ON_EDGE_DEG = 1e-6
 
 def _check_resolution(resolution: str) -> str:
     if resolution not in RESOLUTIONS:
-        raise ValueError(
-            f"coastline resolution {resolution!r} is not bundled; "
-            f"choose one of {sorted(RESOLUTIONS)}"
+        raise CovergridError(
+            f"{resolution!r} is not bundled; choose one of {sorted(RESOLUTIONS)}",
+            field="resolution",
         )
     return RESOLUTIONS[resolution]
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _read_topology(resolution: str) -> dict:
     name = _check_resolution(resolution)
     text = resources.files("covergrid.render").joinpath("data", name).read_text("utf-8")
@@ -90,7 +92,7 @@ def _ring(arcs: list[np.ndarray], indices: list[int]) -> np.ndarray:
     return np.concatenate(parts, axis=0)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def land_polygons(resolution: str = "110m") -> tuple[tuple[np.ndarray, ...], ...]:
     """Land polygons as rings of longitude/latitude positions.
 
@@ -125,7 +127,7 @@ def land_polygons(resolution: str = "110m") -> tuple[tuple[np.ndarray, ...], ...
     return tuple(polygons)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def coastline_polylines(resolution: str = "110m") -> tuple[np.ndarray, ...]:
     """Coastlines as open polylines: the land rings without the map-edge cuts.
 
@@ -179,7 +181,7 @@ def coastline_polylines(resolution: str = "110m") -> tuple[np.ndarray, ...]:
     return tuple(lines)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def coastline_geometry(resolution: str = "110m"):
     """Coastlines as one shapely ``MultiLineString`` in longitude/latitude degrees.
 
@@ -198,7 +200,7 @@ def coastline_geometry(resolution: str = "110m"):
     return shapely.MultiLineString([line for line in coastline_polylines(resolution)])
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def land_geometry(resolution: str = "110m"):
     """Land as one shapely geometry in longitude/latitude degrees (for a light fill).
 
