@@ -34,5 +34,8 @@ TROPICAL_YEAR_DAYS = 365.2421897
 # Sidereal day, 86164.0905 s (common practice).
 SIDEREAL_DAY_S = 86164.0905
 
+# --- Astronomy ------------------------------------------------------------------------
+AU_KM = 149597870.7  # astronomical unit, IAU 2012 Resolution B2 (exact by definition)
+
 TWO_PI = 2.0 * math.pi
 DEG = math.pi / 180.0
