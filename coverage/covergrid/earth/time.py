@@ -11,8 +11,10 @@ Model limits
   grid spacing.
 * Leap seconds are ignored (a UTC time is counted as if every day had 86 400 s). For the same
   reason this is harmless for coverage, but it limits the useful span: epochs are accepted only
-  in the years 1900 to 2100, where the IAU 1982 sidereal-time polynomial is fitted and where
-  UT1 - UTC is known or predictable to well under a second of rotation per day modelled.
+  in the years 1900 to 2100. The IAU 1982 sidereal-time polynomial is fitted to modern
+  observations and meant for use within about a century of J2000, and far from the present the
+  difference between UT1 and a leap-second-free count of UTC (Delta T) is no longer small or
+  predictable, so UT1 = UTC would stop being a sub-second approximation.
 """
 
 from __future__ import annotations
@@ -196,7 +198,7 @@ def julian_date(
     Notes
     -----
     ``JD = jd_whole + jd_fraction``; the epoch is split in integer nanoseconds, so the only
-    rounding is in the fraction (about 1e-17 day, i.e. 1 ns or better).
+    rounding is in the fraction (float64 spacing below 1 day is 1.1e-16 day, about 10 ns).
     """
     ns = _epoch_ns(epoch)
     off = np.asarray(offsets_s, dtype=np.float64)
