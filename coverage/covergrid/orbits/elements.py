@@ -809,7 +809,7 @@ def _where_text(bad: np.ndarray, values: np.ndarray, ids: Sequence[str] | None) 
     parts = []
     for j in idx[:3]:
         who = f"satellite {ids[j]!r}" if ids is not None and j < len(ids) else f"index {j}"
-        parts.append(f"{values.flat[j]!r} at {who}")
+        parts.append(f"{float(values.flat[j])!r} at {who}")
     more = f" and {idx.size - 3} more" if idx.size > 3 else ""
     return ", ".join(parts) + more
 
@@ -894,8 +894,8 @@ def validate_elements(
             problems.append(
                 (
                     field_prefix + "semi_major_axis_km",
-                    f"perigee radius a(1 - e) = {rp.flat[j]:.3f} km (a = {a.flat[j]!r} km, "
-                    f"e = {e_.flat[j]!r}) at {who} must be >= {min_perigee_km:.3f} km "
+                    f"perigee radius a(1 - e) = {rp.flat[j]:.3f} km (a = {float(a.flat[j])!r} km, "
+                    f"e = {float(e_.flat[j])!r}) at {who} must be >= {min_perigee_km:.3f} km "
                     f"(the perigee is below the Earth's surface)"
                     + (f"; {int(low.sum()) - 1} more such" if low.sum() > 1 else ""),
                 )
