@@ -1,0 +1,198 @@
+"""What each per-cell coverage metric means, its units and CF attributes.
+
+This module is the one place where a metric is defined. The kernel (:mod:`covergrid.kernel`)
+produces raw per-cell accumulators; :func:`finalise` turns them into the metrics below;
+the engine attaches the attributes from :data:`METRICS`; summaries, requirement checks and
+maps look metrics up here.
+
+Sampling convention
+-------------------
+A study spans ``T = N * step_s`` seconds, sampled at ``t_i = i * step_s`` for ``i = 0 .. N-1``.
+The visibility found at ``t_i`` holds for ``[t_i, t_i + step_s)`` (sample and hold). All
+durations below are therefore whole multiples of the step; a gap or pass boundary that falls
+between two samples is placed at the later sample, so each duration carries an error of at
+most one step.
+
+Gaps at the edges of the span
+-----------------------------
+A gap is a maximal run of samples with no satellite in view. A gap that touches the start or
+the end of the span is counted as a gap with its length inside the span (it is truncated, not
+dropped and not extended). A cell that is never seen has exactly one gap, of length ``T``.
+This is the convention of the time-based statistics in Wertz and Larson (below): every
+statistic is taken over the analysis span only.
+
+References
+----------
+.. [1] J. R. Wertz and W. J. Larson (eds.), *Space Mission Analysis and Design*, 3rd ed.,
+       Microcosm Press / Kluwer, 1999, sec. 7.2 (coverage figures of merit: percent coverage,
+       maximum gap, mean gap, time-average gap, mean response time). Definitions from memory.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+SMAD = "Wertz and Larson, Space Mission Analysis and Design, 3rd ed., sec. 7.2"
+
+
+@dataclass(frozen=True)
+class MetricInfo:
+    """Definition of one output metric.
+
+    Attributes
+    ----------
+    name : str
+        Variable name in the Dataset and in study files.
+    units : str
+        UDUNITS string (``"s"``, ``"1"``).
+    long_name : str
+        Human label for axes and colour bars.
+    definition : str
+        One-sentence definition (also written as the netCDF ``comment``).
+    source : str
+        Where the definition comes from ("common practice" if none).
+    better : str
+        ``"lower"`` or ``"higher"``: which direction meets a requirement more easily.
+    kind : str
+        ``"fraction"``, ``"duration"``, ``"count"`` or ``"level"`` (number of satellites).
+    """
+
+    name: str
+    units: str
+    long_name: str
+    definition: str
+    source: str
+    better: str
+    kind: str
+    cell_methods: str = "time: point"
+
+    def attrs(self) -> dict[str, str]:
+        """CF attributes of the variable."""
+        return {
+            "units": self.units,
+            "long_name": self.long_name,
+            "comment": f"{self.definition} Source: {self.source}.",
+            "coverage_content_type": "modelResult",
+        }
+
+
+_M = MetricInfo
+METRICS: dict[str, MetricInfo] = {
+    m.name: m
+    for m in (
+        _M("coverage_fraction", "1", "coverage fraction",
+           "Fraction of the span with at least one satellite in view (percent coverage / 100).",
+           SMAD, "higher", "fraction"),
+        _M("max_gap", "s", "maximum gap",
+           "Longest interval with no satellite in view; gaps at the span edges are truncated "
+           "to the span; a never-seen cell has one gap equal to the span.",
+           SMAD, "lower", "duration"),
+        _M("mean_gap", "s", "mean gap",
+           "Sum of gap durations divided by the number of gaps (0 where there is no gap).",
+           SMAD, "lower", "duration"),
+        _M("gap_count", "1", "number of gaps",
+           "Number of maximal intervals with no satellite in view, edge gaps included.",
+           SMAD, "lower", "count"),
+        _M("time_average_gap", "s", "time-average gap",
+           "Sum of squared gap durations divided by the span: the mean length of the gap a "
+           "random instant falls in, averaged over all instants (covered instants count 0).",
+           SMAD, "lower", "duration"),
+        _M("mean_response_time", "s", "mean response time",
+           "Sum of squared gap durations divided by twice the span: the mean wait from a "
+           "random instant until a satellite is in view (0 for covered instants).",
+           SMAD, "lower", "duration"),
+        _M("pass_count", "1", "number of passes",
+           "Number of single-satellite visibility intervals (passes) that start in the span; "
+           "a satellite already in view at the start counts as one pass.",
+           "common practice", "higher", "count"),
+        _M("mean_pass_duration", "s", "mean pass duration",
+           "Total single-satellite time in view divided by the number of passes (0 where "
+           "there is no pass); passes at the span edges are truncated.",
+           "common practice", "higher", "duration"),
+        _M("min_in_view", "1", "minimum satellites in view",
+           "Smallest number of satellites simultaneously in view over the span.",
+           "common practice", "higher", "level"),
+        _M("mean_in_view", "1", "mean satellites in view",
+           "Time-average number of satellites simultaneously in view.",
+           "common practice", "higher", "level"),
+        _M("max_in_view", "1", "maximum satellites in view",
+           "Largest number of satellites simultaneously in view over the span.",
+           "common practice", "higher", "level"),
+        _M("nfold_fraction", "1", "fraction of time with at least k satellites in view",
+           "Fraction of the span with at least k satellites simultaneously in view "
+           "(k-fold coverage); k = 1 equals coverage_fraction.",
+           "common practice", "higher", "fraction"),
+    )
+}
+
+#: Metrics that are integers per cell.
+INTEGER_METRICS = frozenset({"gap_count", "pass_count", "min_in_view", "max_in_view"})
+
+
+def metric_info(name: str) -> MetricInfo:
+    """Look up a metric by name; unknown names raise ValueError listing the valid ones."""
+    try:
+        return METRICS[name]
+    except KeyError:
+        raise ValueError(
+            f"unknown metric {name!r}; valid metrics: {', '.join(METRICS)}"
+        ) from None
+
+
+def finalise(acc: dict[str, np.ndarray], n_steps: int, step_s: float) -> dict[str, np.ndarray]:
+    """Turn raw per-cell accumulators into metrics.
+
+    Parameters
+    ----------
+    acc : dict of ndarray
+        Output of :func:`covergrid.kernel.new_state` after the kernel has run and been closed
+        out: ``hist`` (n_cell, K+1) samples spent at each in-view level (last bin: K or more),
+        ``sum_n`` (n_cell,) satellite-samples in view, ``min_n``, ``max_n``, ``gap_count``,
+        ``sum_gap``, ``sum_gap2`` [samples, samples^2], ``max_gap`` [samples], ``pass_count``.
+    n_steps : int
+        Number of samples N in the span [unitless].
+    step_s : float
+        Sample spacing [s].
+
+    Returns
+    -------
+    dict of ndarray
+        One array per metric of :data:`METRICS`, shape (n_cell,) except ``nfold_fraction``
+        (K, n_cell). Durations in seconds.
+
+    Notes
+    -----
+    With gaps :math:`g_1..g_G` over the span :math:`T` (Wertz and Larson, sec. 7.2):
+
+    .. math::
+
+        \\text{coverage} = (T - \\sum g)/T, \\quad
+        \\text{time-average gap} = \\sum g^2 / T, \\quad
+        \\text{mean response time} = \\sum g^2 / (2T).
+    """
+    n = float(n_steps)
+    hist = acc["hist"]
+    gap_count = acc["gap_count"]
+    pass_count = acc["pass_count"]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean_gap = np.where(gap_count > 0, acc["sum_gap"] / np.maximum(gap_count, 1), 0.0)
+        mean_pass = np.where(pass_count > 0, acc["sum_n"] / np.maximum(pass_count, 1), 0.0)
+    # at-least-k fractions: reverse cumulative sum of the level histogram
+    at_least = np.cumsum(hist[:, ::-1], axis=1)[:, ::-1]  # at_least[:, m] = samples with >= m
+    tag = acc["sum_gap2"] * step_s / n
+    return {
+        "coverage_fraction": at_least[:, 1] / n,
+        "max_gap": acc["max_gap"] * step_s,
+        "mean_gap": mean_gap * step_s,
+        "gap_count": gap_count.astype(np.int32),
+        "time_average_gap": tag,
+        "mean_response_time": 0.5 * tag,
+        "pass_count": pass_count.astype(np.int32),
+        "mean_pass_duration": mean_pass * step_s,
+        "min_in_view": acc["min_n"].astype(np.int32),
+        "mean_in_view": acc["sum_n"] / n,
+        "max_in_view": acc["max_n"].astype(np.int32),
+        "nfold_fraction": (at_least[:, 1:] / n).T.copy(),
+    }
