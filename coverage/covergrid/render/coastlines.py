@@ -200,13 +200,42 @@ def coastline_geometry(resolution: str = "110m"):
     return shapely.MultiLineString([line for line in coastline_polylines(resolution)])
 
 
+def _ring_to_map(ring: np.ndarray):
+    """A spherical ring as a planar shapely polygon on the plate carree map, split at 180 deg.
+
+    Rings in the file may step across the antimeridian (Chukotka, Fiji) or wind once around a
+    pole (Antarctica). The longitudes are unwrapped so the ring is continuous; a ring whose
+    longitude changes by a full turn encloses the pole and is closed along the pole's parallel;
+    the polygon is then cut into its parts on the copies of the map shifted by whole turns.
+    """
+    import shapely
+    import shapely.affinity
+
+    lon = np.degrees(np.unwrap(np.radians(ring[:, 0])))
+    lat = ring[:, 1]
+    turn = lon[-1] - lon[0]
+    if abs(turn) > 180.0:  # winds around a pole: close it along that pole's parallel
+        pole = -90.0 if lat.mean() < 0.0 else 90.0
+        lon = np.concatenate([lon, [lon[-1], lon[0]]])
+        lat = np.concatenate([lat, [pole, pole]])
+    polygon = shapely.make_valid(shapely.Polygon(np.column_stack([lon, lat])))
+    world = shapely.box(-180.0, -90.0, 180.0, 90.0)
+    low = int(np.floor((lon.min() + 180.0) / 360.0))
+    high = int(np.floor((lon.max() + 180.0) / 360.0))
+    parts = [
+        shapely.intersection(shapely.affinity.translate(polygon, xoff=-360.0 * n), world)
+        for n in range(low, high + 1)
+    ]
+    return shapely.union_all(parts)
+
+
 @functools.cache
 def land_geometry(resolution: str = "110m"):
-    """Land as one shapely geometry in longitude/latitude degrees (for a light fill).
+    """Land as shapely polygons on the plate carree map (for a light fill).
 
-    A few bundled rings touch themselves after quantization (a handful of positions near
-    Chukotka, Fiji and the Antarctic cut); each polygon is repaired with ``shapely.make_valid``
-    so that fills render cleanly.
+    Rings crossing the antimeridian are split there and Antarctica is closed to the pole (see
+    ``_ring_to_map``); a few rings that touch themselves after quantization are repaired with
+    ``shapely.make_valid``. Coordinates are longitude in [-180, 180] and latitude [deg].
 
     Parameters
     ----------
@@ -216,14 +245,16 @@ def land_geometry(resolution: str = "110m"):
     Returns
     -------
     shapely.MultiPolygon
-        Each part a valid polygon (parts may touch); coordinates are longitude, latitude [deg]
-        (plate carree).
+        Valid polygons (parts may touch) in longitude, latitude [deg].
     """
     import shapely
 
-    polygons = [shapely.Polygon(rings[0], holes=rings[1:]) for rings in land_polygons(resolution)]
-    repaired = shapely.make_valid(np.array(polygons, dtype=object))
-    # make_valid may return collections holding slivers of lower dimension; keep the areas.
-    parts = shapely.get_parts(shapely.get_parts(repaired))
+    pieces = []
+    for rings in land_polygons(resolution):
+        shape = _ring_to_map(rings[0])
+        for hole in rings[1:]:
+            shape = shape.difference(_ring_to_map(hole))
+        pieces.append(shape)
+    parts = shapely.get_parts(shapely.get_parts(np.array(pieces, dtype=object)))
     keep = shapely.get_type_id(parts) == shapely.GeometryType.POLYGON
     return shapely.MultiPolygon(list(parts[keep]))

@@ -1,0 +1,444 @@
+"""Report-ready maps of per-cell coverage metrics.
+
+A map shows one metric of a coverage Dataset (dims ``lat``, ``lon``; bounds ``lat_bnds``,
+``lon_bnds``) as filled grid cells drawn on their true bounds, with the bundled coastlines,
+labelled gridlines, a colour bar in a readable unit, a title, the caller's caption and the
+standard footer. Colours and units follow :mod:`covergrid.render.style`. Cells holding NaN
+(for example outside the computed latitude band) are left transparent.
+
+Saved maps (:func:`save_metric_maps`) are ``maps/<metric>.png`` at 200 dpi and
+``maps/<metric>.pdf`` with the cells, coastlines and text as vector graphics (grids finer than
+:data:`VECTOR_CELL_LIMIT` cells have only the cell mesh rasterised inside the PDF, to keep files
+small). ``nfold_fraction`` is drawn once per fold ``k``: ``maps/nfold_fraction_k<k>.png``.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable, Iterable, Mapping
+from pathlib import Path
+
+import numpy as np
+
+from covergrid.errors import CovergridError
+from covergrid.render import style
+from covergrid.render.coastlines import coastline_geometry
+
+__all__ = [
+    "MAP_FIGSIZE_IN",
+    "PROJECTIONS",
+    "VECTOR_CELL_LIMIT",
+    "design_caption",
+    "get_projection",
+    "plot_metric_map",
+    "save_metric_maps",
+]
+
+#: Size of a saved map figure [in]; at 200 dpi a PNG is 1700 x 1000 pixels.
+MAP_FIGSIZE_IN = (8.5, 5.0)
+
+#: Grids with more cells than this are rasterised (mesh only) inside the PDF.
+VECTOR_CELL_LIMIT = 200_000
+
+# Latitude where the polar views stop [deg]: the pole down to 20 deg keeps polar detail legible.
+_POLAR_EDGE_LAT_DEG = 20.0
+
+
+def _robinson(lon0, lat0):
+    import cartopy.crs as ccrs
+
+    return ccrs.Robinson(central_longitude=lon0)
+
+
+def _plate_carree(lon0, lat0):
+    import cartopy.crs as ccrs
+
+    return ccrs.PlateCarree(central_longitude=lon0)
+
+
+def _mollweide(lon0, lat0):
+    import cartopy.crs as ccrs
+
+    return ccrs.Mollweide(central_longitude=lon0)
+
+
+def _equal_earth(lon0, lat0):
+    import cartopy.crs as ccrs
+
+    return ccrs.EqualEarth(central_longitude=lon0)
+
+
+def _orthographic(lon0, lat0):
+    import cartopy.crs as ccrs
+
+    return ccrs.Orthographic(central_longitude=lon0, central_latitude=lat0)
+
+
+def _polar_north(lon0, lat0):
+    import cartopy.crs as ccrs
+
+    return ccrs.NorthPolarStereo(central_longitude=lon0)
+
+
+def _polar_south(lon0, lat0):
+    import cartopy.crs as ccrs
+
+    return ccrs.SouthPolarStereo(central_longitude=lon0)
+
+
+#: Projection names of our own -> factory ``f(centre_lon_deg, centre_lat_deg) -> cartopy CRS``.
+PROJECTIONS: dict[str, Callable] = {
+    "robinson": _robinson,
+    "plate_carree": _plate_carree,
+    "mollweide": _mollweide,
+    "equal_earth": _equal_earth,
+    "orthographic": _orthographic,
+    "polar_north": _polar_north,
+    "polar_south": _polar_south,
+}
+
+
+def get_projection(projection="robinson", *, centre_lon_deg: float = 0.0,
+                   centre_lat_deg: float = 0.0):
+    """Look up a map projection by our short name.
+
+    Parameters
+    ----------
+    projection : str or cartopy.crs.Projection
+        A name from :data:`PROJECTIONS`, or a cartopy projection used as given.
+    centre_lon_deg : float
+        Central longitude [deg].
+    centre_lat_deg : float
+        Central latitude [deg] (orthographic only).
+
+    Returns
+    -------
+    cartopy.crs.Projection
+        The projection.
+
+    Raises
+    ------
+    ValueError
+        Unknown name; the message lists the valid names.
+    """
+    import cartopy.crs as ccrs
+
+    if isinstance(projection, ccrs.Projection):
+        return projection
+    if not isinstance(projection, str) or projection not in PROJECTIONS:
+        raise CovergridError(
+            f"{projection!r} is unknown; choose one of {sorted(PROJECTIONS)}", field="projection"
+        )
+    return PROJECTIONS[projection](float(centre_lon_deg), float(centre_lat_deg))
+
+
+def _projection_name(projection) -> str | None:
+    return projection if isinstance(projection, str) else None
+
+
+def _prepare_axes(ax, projection_name, band_deg):
+    """Extent, polar circle boundary, coastlines and gridlines for one map axes."""
+    import cartopy.crs as ccrs
+    import matplotlib.path as mpath
+
+    if projection_name in ("polar_north", "polar_south"):
+        edge = _POLAR_EDGE_LAT_DEG if projection_name == "polar_north" else -_POLAR_EDGE_LAT_DEG
+        pole = 90.0 if projection_name == "polar_north" else -90.0
+        ax.set_extent([-180, 180, min(edge, pole), max(edge, pole)], crs=ccrs.PlateCarree())
+        theta = np.linspace(0, 2 * np.pi, 200)
+        circle = mpath.Path(np.column_stack([np.sin(theta), np.cos(theta)]) * 0.5 + 0.5)
+        ax.set_boundary(circle, transform=ax.transAxes)
+    elif projection_name in (None, "orthographic"):
+        pass
+    else:
+        ax.set_global()
+    # A thin light halo under the dark line keeps the coast legible on dark and light cells alike.
+    coast = [coastline_geometry("110m")]
+    ax.add_geometries(coast, crs=ccrs.PlateCarree(), facecolor="none", edgecolor="white",
+                      linewidth=1.1, alpha=0.7, zorder=3)
+    ax.add_geometries(coast, crs=ccrs.PlateCarree(), facecolor="none", edgecolor="0.1",
+                      linewidth=0.45, zorder=3)
+    rectangular = projection_name == "plate_carree"
+    gl = ax.gridlines(crs=ccrs.PlateCarree(), draw_labels=True, linewidth=0.3, color="0.4",
+                      alpha=0.6, linestyle="--", zorder=4,
+                      x_inline=False if rectangular else None,
+                      y_inline=False if rectangular else None)
+    gl.top_labels = False
+    gl.right_labels = False
+    gl.xlabel_style = {"size": 7}
+    gl.ylabel_style = {"size": 7}
+    return gl
+
+
+def _edges_from_bounds(bounds: np.ndarray) -> np.ndarray:
+    """Cell edges (n + 1,) from CF bounds (n, 2) of contiguous cells [deg]."""
+    bounds = np.asarray(bounds, dtype=float)
+    return np.concatenate([bounds[:, 0], bounds[-1:, 1]])
+
+
+def _metric_field(ds, metric: str, k: int | None):
+    if metric not in ds.data_vars:
+        metrics = sorted(n for n in ds.data_vars if {"lat", "lon"} <= set(ds[n].dims)
+                         and n != "cell_area")
+        raise CovergridError(f"{metric!r} is not in the Dataset; it holds {metrics}",
+                             field="metric")
+    da = ds[metric]
+    if "k" in da.dims:
+        folds = [int(v) for v in ds["k"].values]
+        if k is None or int(k) not in folds:
+            raise CovergridError(f"{metric} needs a fold; got {k!r}, the Dataset holds k={folds}",
+                                 field="k")
+        da = da.sel(k=int(k))
+    elif k is not None:
+        raise CovergridError(f"{k!r} given but {metric} has no fold dimension 'k'", field="k")
+    return da.transpose("lat", "lon"), (int(k) if "k" in ds[metric].dims else None)
+
+
+def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=None,
+                    caption=None, cmap=None, k=None, centre_lon_deg: float = 0.0,
+                    centre_lat_deg: float = 0.0):
+    """Draw one per-cell metric as a map with coastlines, gridlines and a colour bar.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Coverage Dataset with ``lat``/``lon`` and their bounds ``lat_bnds``/``lon_bnds`` [deg].
+    metric : str
+        Variable to draw, e.g. ``"max_gap"``.
+    ax : cartopy.mpl.geoaxes.GeoAxes, optional
+        Axes to draw on (its projection is kept). Without one a report figure of
+        :data:`MAP_FIGSIZE_IN` is made, with the caption and footer at the bottom.
+    projection : str or cartopy.crs.Projection
+        Name from :data:`PROJECTIONS` (``"robinson"`` default) or a cartopy projection.
+    title : str, optional
+        Title; the metric's long name by default.
+    caption : str, optional
+        Caption under the map (for example from :func:`design_caption`); only on a new figure.
+    cmap : str or Colormap, optional
+        Colour map override (otherwise the rule in :mod:`covergrid.render.style`).
+    k : int, optional
+        Fold for ``nfold_fraction`` (required there).
+    centre_lon_deg, centre_lat_deg : float
+        Centre of the projection [deg].
+
+    Returns
+    -------
+    matplotlib.collections.QuadMesh
+        The cell mesh; its colour bar is ``mesh.colorbar``.
+
+    Raises
+    ------
+    ValueError
+        Unknown metric, missing or unknown fold, or unknown projection.
+    """
+    import cartopy.crs as ccrs
+    import matplotlib.pyplot as plt
+
+    da, fold = _metric_field(ds, metric, k)
+    units = da.attrs.get("units")
+    values = np.asarray(da.values, dtype=float)
+    unit = style.display_unit(metric, units, values)
+    shown = np.ma.masked_invalid(values * unit.factor)
+    lon_edges = _edges_from_bounds(ds["lon_bnds"].values)
+    lat_edges = _edges_from_bounds(ds["lat_bnds"].values)
+
+    with style.report_style():
+        if ax is None:
+            crs = get_projection(projection, centre_lon_deg=centre_lon_deg,
+                                 centre_lat_deg=centre_lat_deg)
+            fig = plt.figure(figsize=MAP_FIGSIZE_IN)
+            ax = fig.add_axes((0.04, 0.19, 0.80, 0.72), projection=crs)
+            cax = fig.add_axes((0.875, 0.26, 0.022, 0.58))
+            own_figure = True
+        else:
+            fig, cax, own_figure = ax.figure, None, False
+        name = _projection_name(projection) if own_figure else None
+        _prepare_axes(ax, name, (lat_edges[0], lat_edges[-1]))
+
+        colormap = style.colormap_for(metric, units, cmap=cmap)
+        norm, ticks = _norm_for(metric, units, shown)
+        mesh = ax.pcolormesh(lon_edges, lat_edges, shown, transform=ccrs.PlateCarree(),
+                             cmap=colormap, norm=norm, shading="flat", edgecolors="face",
+                             linewidth=0, zorder=1,
+                             rasterized=values.size > VECTOR_CELL_LIMIT)
+        if cax is not None:
+            cbar = fig.colorbar(mesh, cax=cax, ticks=ticks)
+        else:
+            cbar = fig.colorbar(mesh, ax=ax, shrink=0.8, ticks=ticks)
+        cbar.set_label(style.metric_label(metric, da.attrs, unit, k=fold))
+        cbar.outline.set_linewidth(0.5)
+        if title is None:
+            title = str(da.attrs.get("long_name") or metric.replace("_", " "))
+            title = title[:1].upper() + title[1:]
+            if fold is not None:
+                title += f", at least {fold} satellite{'s' if fold > 1 else ''} in view"
+        ax.set_title(title, pad=8)
+        if own_figure:
+            style.add_caption(fig, caption)
+    return mesh
+
+
+# Integer-valued data spanning at most this many values get one discrete colour per value.
+_MAX_DISCRETE_LEVELS = 16
+
+
+def _norm_for(metric, units, shown):
+    """Continuous normalisation, or one colour per integer for small counts."""
+    import matplotlib.colors as mcolors
+
+    data = shown.compressed()
+    if data.size == 0:
+        return mcolors.Normalize(vmin=0.0, vmax=1.0), None
+    lo, hi = float(data.min()), float(data.max())
+    integer = style.metric_kind(metric, units) == "count" and np.all(data == np.round(data))
+    if integer and hi - lo + 1 <= _MAX_DISCRETE_LEVELS:
+        levels = np.arange(lo, hi + 1)
+        return mcolors.BoundaryNorm(np.append(levels, hi + 1) - 0.5, ncolors=256), levels
+    if hi == lo:  # a uniform field: centre it in the colour range
+        return mcolors.Normalize(vmin=lo - 0.5, vmax=hi + 0.5), None
+    return mcolors.Normalize(vmin=lo, vmax=hi), None
+
+
+def _map_jobs(ds, metrics: Iterable[str], k):
+    for metric in metrics:
+        if metric in ds.data_vars and "k" in ds[metric].dims:
+            folds = [int(v) for v in ds["k"].values] if k is None else [int(k)]
+            for fold in folds:
+                yield metric, fold, f"{metric}_k{fold}"
+        else:
+            yield metric, None, metric
+
+
+def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None,
+                     projection="robinson", k: int | None = None,
+                     titles: Mapping[str, str] | None = None) -> list[Path]:
+    """Write a PNG (200 dpi) and a vector PDF map of each metric under ``out_dir/maps/``.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Coverage Dataset.
+    metrics : iterable of str
+        Metrics to draw.
+    out_dir : path-like
+        Study output folder; files go to ``out_dir/maps/<metric>.png`` and ``.pdf``.
+    caption : str or None
+        Caption of every map (the design and span; see :func:`design_caption`).
+    projection : str or cartopy.crs.Projection
+        Projection name or object.
+    k : int, optional
+        For fold metrics (``nfold_fraction``): draw only this fold; by default one map per fold,
+        named ``<metric>_k<k>``.
+    titles : mapping, optional
+        Title per metric name, overriding the default.
+
+    Returns
+    -------
+    list of pathlib.Path
+        Written files, PNG then PDF for each map, in order.
+
+    Raises
+    ------
+    ValueError
+        Unknown metric, fold or projection (raised before any file is written).
+    """
+    import matplotlib.pyplot as plt
+
+    metrics = list(metrics)
+    jobs = list(_map_jobs(ds, metrics, k))
+    for metric, fold, _ in jobs:  # validate everything before writing anything
+        _metric_field(ds, metric, fold)
+    get_projection(projection)
+    maps_dir = Path(os.fspath(out_dir)) / "maps"
+    written: list[Path] = []
+    for metric, fold, stem in jobs:
+        title = (titles or {}).get(metric)
+        mesh = plot_metric_map(ds, metric, projection=projection, title=title, caption=caption,
+                               k=fold)
+        fig = mesh.axes.figure
+        try:
+            for suffix in (".png", ".pdf"):
+                written.append(style.atomic_savefig(fig, maps_dir / f"{stem}{suffix}"))
+        finally:
+            plt.close(fig)
+    return written
+
+
+_CAPTION_KEYS = {
+    "pattern", "total", "planes", "phasing", "altitude_km", "inclination_deg",
+    "min_elevation_deg", "max_off_nadir_deg", "max_range_km", "duration_h", "step_s", "epoch",
+}
+
+
+def _fmt(value: float, digits: int = 1) -> str:
+    text = f"{float(value):.{digits}f}"
+    return text.rstrip("0").rstrip(".") if "." in text else text
+
+
+def design_caption(study_like: Mapping) -> str:
+    """Caption text stating the design, the sensor limits and the time span of a study.
+
+    Parameters
+    ----------
+    study_like : mapping
+        Plain dict with any of: ``pattern`` ("delta" or "star"), ``total``, ``planes``,
+        ``phasing`` (Walker T/P/F), ``altitude_km``, ``inclination_deg``, ``min_elevation_deg``,
+        ``max_off_nadir_deg``, ``max_range_km``, ``duration_h``, ``step_s``, ``epoch`` (ISO text
+        or datetime64). Missing or None entries are left out.
+
+    Returns
+    -------
+    str
+        For example ``"Walker delta 24/3/1, altitude 550 km, inclination 53\u00b0. Sensor: minimum
+        elevation 10\u00b0. Span 24 h from 2026-03-01T00:00:00Z, step 60 s."``
+
+    Raises
+    ------
+    ValueError
+        An unknown key (named, with the allowed keys), or T/P/F given only in part.
+    """
+    unknown = sorted(set(study_like) - _CAPTION_KEYS)
+    if unknown:
+        raise CovergridError(
+            f"unknown key(s) {unknown}; allowed keys are {sorted(_CAPTION_KEYS)}",
+            field="design_caption",
+        )
+    s = {key: value for key, value in study_like.items() if value is not None}
+    sentences = []
+    design = []
+    tpf = [s.get("total"), s.get("planes"), s.get("phasing")]
+    if any(v is not None for v in tpf):
+        if any(v is None for v in tpf):
+            raise CovergridError(
+                f"total, planes and phasing go together; got {tpf}", field="design_caption"
+            )
+        pattern = s.get("pattern", "delta")
+        design.append(f"Walker {pattern} {int(tpf[0])}/{int(tpf[1])}/{int(tpf[2])}")
+    elif "pattern" in s:
+        design.append(f"Walker {s['pattern']}")
+    if "altitude_km" in s:
+        design.append(f"altitude {_fmt(s['altitude_km'])} km")
+    if "inclination_deg" in s:
+        design.append(f"inclination {_fmt(s['inclination_deg'], 2)}\u00b0")
+    if design:
+        sentences.append(", ".join(design) + ".")
+    sensor = []
+    if "min_elevation_deg" in s:
+        sensor.append(f"minimum elevation {_fmt(s['min_elevation_deg'])}\u00b0")
+    if "max_off_nadir_deg" in s and np.isfinite(float(s["max_off_nadir_deg"])):
+        sensor.append(f"maximum off-nadir {_fmt(s['max_off_nadir_deg'])}\u00b0")
+    if "max_range_km" in s and np.isfinite(float(s["max_range_km"])):
+        sensor.append(f"maximum range {_fmt(s['max_range_km'], 0)} km")
+    if sensor:
+        sentences.append("Sensor: " + ", ".join(sensor) + ".")
+    span = f"Span {_fmt(s['duration_h'], 2)} h" if "duration_h" in s else ""
+    if "epoch" in s:
+        epoch = s["epoch"]
+        if isinstance(epoch, np.datetime64):
+            epoch = np.datetime_as_string(epoch.astype("datetime64[s]")) + "Z"
+        span += (" from " if span else "Epoch ") + str(epoch)
+    if "step_s" in s:
+        span += (", step " if span else "Step ") + f"{_fmt(s['step_s'], 3)} s"
+    if span:
+        sentences.append(span + ".")
+    return " ".join(sentences)

@@ -1,0 +1,312 @@
+"""Shared look of every covergrid figure: sizes, fonts, colour maps, display units, captions.
+
+Colour rule (one rule for every map and chart)
+----------------------------------------------
+All colour maps are perceptually uniform matplotlib maps, one family per kind of quantity so that
+a reader can tell kinds apart across a report:
+
+- fractions of time (``coverage_fraction``, ``nfold_fraction``): ``viridis``;
+- durations (gaps, response time, pass duration): ``cividis`` (also readable with red-green
+  colour-vision deficiency);
+- counts (passes, gaps, satellites in view): ``magma``.
+
+Each map is oriented so that **the bright (yellow) end always means good**: for a metric where
+higher is better the map runs dark -> bright with the value; where lower is better (gaps, response
+time) the reversed map is used, so a short gap is bright. Which way is better comes from the
+metric registry ``covergrid.metrics.METRICS`` (field ``better``); for names it does not know, the
+small table ``LOWER_IS_BETTER`` below decides, and anything else counts as higher-is-better.
+
+Display units
+-------------
+Quantities stored in seconds are shown in s, min, h or d, whichever keeps the largest finite value
+of the data at or below 180 of the unit (so up to 3 min in s, up to 3 h in min, up to 3 days in h,
+days beyond); fractions (``*_fraction``, units "1") are shown in per cent; other unitless
+quantities are plain numbers. The chosen unit is always in the axis or colour-bar label.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+import textwrap
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+__all__ = [
+    "DPI",
+    "FOOTER",
+    "LOWER_IS_BETTER",
+    "DisplayUnit",
+    "add_caption",
+    "atomic_savefig",
+    "colormap_for",
+    "display_unit",
+    "is_lower_better",
+    "line_colour",
+    "metric_kind",
+    "metric_label",
+    "report_style",
+]
+
+#: Raster resolution of saved PNG files [dots per inch].
+DPI = 200
+
+#: Footer carried by every figure.
+FOOTER = "Design study result: secular J2, mean elements; not for operations."
+
+#: Metrics where a lower value is better, used when the metric registry does not say.
+LOWER_IS_BETTER = frozenset(
+    {"max_gap", "mean_gap", "gap_count", "time_average_gap", "mean_response_time"}
+)
+
+# Font sizes [pt] of the report style.
+_FONT_PT = {"base": 9.0, "title": 11.0, "caption": 8.0, "footer": 6.5}
+
+_CAPTION_WRAP_CHARS = 120  # characters per caption line at the map figure width
+
+_FAMILY_CMAP = {"fraction": "viridis", "duration": "cividis", "count": "magma"}
+
+
+@contextlib.contextmanager
+def report_style() -> Iterator[None]:
+    """Temporarily apply the report font sizes and line widths (``matplotlib.rc_context``)."""
+    import matplotlib as mpl
+
+    rc = {
+        "font.size": _FONT_PT["base"],
+        "axes.titlesize": _FONT_PT["title"],
+        "axes.labelsize": _FONT_PT["base"],
+        "xtick.labelsize": _FONT_PT["base"] - 1,
+        "ytick.labelsize": _FONT_PT["base"] - 1,
+        "legend.fontsize": _FONT_PT["base"] - 1,
+        "axes.linewidth": 0.6,
+        "lines.linewidth": 1.2,
+        "pdf.fonttype": 42,  # embed TrueType so text in the PDF stays text
+        "savefig.dpi": DPI,
+    }
+    with mpl.rc_context(rc):
+        yield
+
+
+def metric_kind(name: str, units: str | None) -> str:
+    """Kind of a quantity for colour and unit choice.
+
+    Parameters
+    ----------
+    name : str
+        Variable name (``max_gap``).
+    units : str or None
+        Its CF ``units`` attribute.
+
+    Returns
+    -------
+    str
+        ``"duration"`` (units "s"), ``"fraction"`` (unitless ``*_fraction``) or ``"count"``.
+    """
+    if units == "s":
+        return "duration"
+    if name.endswith("_fraction"):
+        return "fraction"
+    return "count"
+
+
+def is_lower_better(name: str) -> bool:
+    """Whether a lower value of metric ``name`` is better (registry first, then local table).
+
+    Parameters
+    ----------
+    name : str
+        Metric name.
+
+    Returns
+    -------
+    bool
+        True for gap-like metrics.
+    """
+    try:
+        from covergrid.metrics import METRICS  # the registry, when present
+    except ImportError:
+        METRICS = {}
+    info = METRICS.get(name)
+    if info is not None and getattr(info, "better", None) in ("lower", "higher"):
+        return info.better == "lower"
+    return name in LOWER_IS_BETTER
+
+
+def colormap_for(name: str, units: str | None, *, cmap=None):
+    """The colour map of a metric per the module rule (bright = good), NaN transparent.
+
+    Parameters
+    ----------
+    name : str
+        Metric name.
+    units : str or None
+        Its CF units.
+    cmap : str or matplotlib.colors.Colormap, optional
+        Override; used as given (no reversal).
+
+    Returns
+    -------
+    matplotlib.colors.Colormap
+        A copy whose "bad" colour (NaN cells) is fully transparent.
+    """
+    import matplotlib as mpl
+
+    if cmap is None:
+        base = _FAMILY_CMAP[metric_kind(name, units)]
+        cmap = base + "_r" if is_lower_better(name) else base
+    colormap = mpl.colormaps[cmap] if isinstance(cmap, str) else cmap
+    colormap = colormap.copy()
+    colormap.set_bad((0.0, 0.0, 0.0, 0.0))
+    return colormap
+
+
+def line_colour(name: str, units: str | None):
+    """A dark colour of the metric's colour-map family, for lines on white (profiles, charts).
+
+    Parameters
+    ----------
+    name : str
+        Metric name.
+    units : str or None
+        Its CF units.
+
+    Returns
+    -------
+    tuple of float
+        RGBA colour: the family map (never reversed) at 0.3 of its range.
+    """
+    import matplotlib as mpl
+
+    return mpl.colormaps[_FAMILY_CMAP[metric_kind(name, units)]](0.3)
+
+
+@dataclass(frozen=True)
+class DisplayUnit:
+    """How to show a quantity: ``shown = stored * factor``, labelled ``label``."""
+
+    label: str  # "min", "h", "%", "" (plain number)
+    factor: float
+
+
+# Seconds per display unit; a unit is used while the data stay <= 180 of it.
+_TIME_UNITS_S = (("s", 1.0), ("min", 60.0), ("h", 3600.0), ("d", 86400.0))
+_MAX_IN_UNIT = 180.0
+
+
+def display_unit(name: str, units: str | None, values) -> DisplayUnit:
+    """Choose the display unit of a quantity from its stored units and data range.
+
+    Parameters
+    ----------
+    name : str
+        Variable name.
+    units : str or None
+        Stored CF units ("s", "1" ...).
+    values : array_like
+        The data (NaN ignored) [stored units].
+
+    Returns
+    -------
+    DisplayUnit
+        Label and multiplication factor (see the module docstring for the rule).
+    """
+    if units == "s":
+        finite = np.asarray(values, dtype=float)
+        finite = finite[np.isfinite(finite)]
+        largest_s = float(np.max(np.abs(finite))) if finite.size else 0.0
+        for label, seconds in _TIME_UNITS_S:
+            if largest_s <= _MAX_IN_UNIT * seconds:
+                return DisplayUnit(label, 1.0 / seconds)
+        return DisplayUnit("d", 1.0 / 86400.0)
+    if metric_kind(name, units) == "fraction" and units in (None, "1", ""):
+        return DisplayUnit("%", 100.0)
+    if units in (None, "1", ""):
+        return DisplayUnit("", 1.0)
+    return DisplayUnit(units, 1.0)
+
+
+def metric_label(name: str, attrs: Mapping, unit: DisplayUnit, *, k: int | None = None) -> str:
+    """Axis or colour-bar label: the long name (or the name) and the display unit in brackets.
+
+    Parameters
+    ----------
+    name : str
+        Variable name.
+    attrs : mapping
+        Its attributes (``long_name`` used when present).
+    unit : DisplayUnit
+        Display unit.
+    k : int, optional
+        For N-fold quantities, the fold shown.
+
+    Returns
+    -------
+    str
+        For example ``"maximum gap [min]"``.
+    """
+    text = str(attrs.get("long_name") or name.replace("_", " "))
+    if k is not None:
+        text += f" (k \u2265 {k})"
+    return f"{text} [{unit.label}]" if unit.label else text
+
+
+def add_caption(fig, caption: str | None, *, footer: str = FOOTER, width_chars=None) -> None:
+    """Write the caption (wrapped) and the footer line at the bottom of a figure.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        Figure; the caller leaves room at the bottom (see the figure layouts).
+    caption : str or None
+        Caption text; None writes only the footer.
+    footer : str
+        Footer line, :data:`FOOTER` by default.
+    width_chars : int, optional
+        Wrap width [characters]; scaled from the figure width when omitted.
+    """
+    if width_chars is None:
+        width_chars = int(_CAPTION_WRAP_CHARS * fig.get_figwidth() / 8.0)
+    if caption:
+        text = "\n".join(textwrap.wrap(caption, width=width_chars))
+        fig.text(0.02, 0.105, text, ha="left", va="top", fontsize=_FONT_PT["caption"])
+    fig.text(0.02, 0.012, footer, ha="left", va="bottom", fontsize=_FONT_PT["footer"],
+             color="0.35", style="italic")
+
+
+def atomic_savefig(fig, path: str | os.PathLike, *, dpi: int = DPI) -> Path:
+    """Save a figure under a temporary name in the target folder, then rename it into place.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        Figure to save.
+    path : path-like
+        Target file; the format comes from its suffix (``.png``, ``.pdf``).
+    dpi : int
+        Raster resolution [dots per inch].
+
+    Returns
+    -------
+    pathlib.Path
+        The written path. A failure leaves no partial file behind.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=path.suffix, dir=path.parent)
+    os.close(fd)
+    try:
+        fig.savefig(tmp, format=path.suffix.lstrip("."), dpi=dpi)
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; give the file normal permissions
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+    return path

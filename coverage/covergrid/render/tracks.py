@@ -1,0 +1,297 @@
+"""Ground-track figures: sub-satellite paths on a map, broken cleanly at the antimeridian.
+
+Colours: satellites of one orbital plane share a colour (``tab10`` for up to 10 planes,
+``tab20`` up to 20, evenly spaced ``viridis`` beyond). Without plane numbers each satellite is
+its own group. A filled circle marks where each track starts (the epoch), so the direction of
+flight is readable.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Sequence
+from pathlib import Path
+
+import numpy as np
+
+from covergrid.errors import CovergridError
+from covergrid.render import style
+from covergrid.render.coastlines import land_geometry
+
+__all__ = [
+    "TRACK_FIGSIZE_IN",
+    "ground_track",
+    "plane_numbers",
+    "plot_ground_tracks",
+    "save_ground_tracks",
+    "split_at_antimeridian",
+]
+
+#: Size of a saved ground-track figure [in]; at 200 dpi a PNG is 1700 x 1000 pixels.
+TRACK_FIGSIZE_IN = (8.5, 5.0)
+
+
+def ground_track(elements, epoch, t_s) -> tuple[np.ndarray, np.ndarray]:
+    """Sub-satellite latitude and longitude of each satellite at the given times.
+
+    Parameters
+    ----------
+    elements : covergrid.orbits.walker.ElementSet
+        Mean elements at ``epoch`` [km, rad].
+    epoch : numpy.datetime64 or str
+        Epoch of the elements (UTC).
+    t_s : array_like, shape (n_t,)
+        Times after the epoch [s].
+
+    Returns
+    -------
+    lat_deg, lon_deg : numpy.ndarray, shape (n_sat, n_t)
+        Geodetic latitude [deg] and longitude in [-180, 180) [deg].
+
+    Notes
+    -----
+    Secular-J2 propagation (:func:`covergrid.orbits.j2.propagate_to_ecef`) rotated by the
+    IAU 1982 Greenwich mean sidereal angle at the epoch (:func:`covergrid.earth.time.gmst_rad`),
+    then the geodetic nadir point (:func:`covergrid.earth.frames.subsatellite_point`).
+    """
+    from covergrid.earth.frames import subsatellite_point
+    from covergrid.earth.time import gmst_rad
+    from covergrid.orbits.j2 import propagate_to_ecef
+
+    theta0_rad = float(np.asarray(gmst_rad(epoch, 0.0)))
+    r_ecef_km = propagate_to_ecef(elements, np.asarray(t_s, dtype=float), theta0_rad)
+    lat_rad, lon_rad = subsatellite_point(r_ecef_km)
+    return np.degrees(lat_rad), np.degrees(lon_rad)
+
+
+# Satellites whose node and inclination agree to this are in one plane [rad] (1e-6 rad is
+# 0.2 arcsec, far below any designed plane spacing).
+_SAME_PLANE_RAD = 1e-6
+
+
+def plane_numbers(elements) -> np.ndarray:
+    """Number the orbital planes of an element set (0, 1, ... in order of first appearance).
+
+    Parameters
+    ----------
+    elements : covergrid.orbits.walker.ElementSet
+        Elements at the epoch [rad].
+
+    Returns
+    -------
+    numpy.ndarray of int, shape (n_sat,)
+        Plane number of each satellite: equal RAAN and inclination means the same plane.
+    """
+    raan = np.mod(np.asarray(elements.raan_rad, dtype=float), 2 * np.pi)
+    inc = np.asarray(elements.i_rad, dtype=float)
+    # Pairwise comparison: n_sat is at most a few thousand, so (n, n) booleans are cheap.
+    draan = np.abs(np.angle(np.exp(1j * (raan[:, None] - raan[None, :]))))
+    same = (draan < _SAME_PLANE_RAD) & (np.abs(inc[:, None] - inc[None, :]) < _SAME_PLANE_RAD)
+    first = np.argmax(same, axis=1)  # index of the first satellite in the same plane
+    _, numbers = np.unique(first, return_inverse=True)
+    return numbers.reshape(-1)
+
+
+def split_at_antimeridian(lat_deg, lon_deg) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Split one track into pieces that never cross the antimeridian.
+
+    Parameters
+    ----------
+    lat_deg, lon_deg : array_like, shape (n_t,)
+        Track latitude [deg] and longitude [deg] (any wrapping).
+
+    Returns
+    -------
+    list of (lat_deg, lon_deg)
+        Pieces in time order with longitudes in [-180, 180]. Where the track crosses 180 deg,
+        the piece before ends and the piece after starts exactly on the meridian, at the
+        latitude interpolated linearly in unwrapped longitude, so the drawn line reaches the map
+        edge without a streak across the map.
+    """
+    lat = np.asarray(lat_deg, dtype=float)
+    lon = np.asarray(lon_deg, dtype=float)
+    if lat.shape != lon.shape or lat.ndim != 1:
+        raise CovergridError(
+            f"lat_deg and lon_deg must be 1-D of equal length; got {lat.shape} and {lon.shape}",
+            field="lon_deg",
+        )
+    if lat.size == 0:
+        return []
+    unwrapped = np.degrees(np.unwrap(np.radians(lon)))
+    # Which copy of the map each sample is on: sheet n covers [-180 + 360 n, 180 + 360 n).
+    sheet = np.floor((unwrapped + 180.0) / 360.0)
+    cross = np.flatnonzero(np.diff(sheet) != 0)
+    pieces = []
+    start = 0
+    entry = None  # (lat, lon) where the current piece enters the map
+    for i in cross:
+        boundary = 180.0 + 360.0 * min(sheet[i], sheet[i + 1])  # unwrapped meridian crossed
+        frac = (boundary - unwrapped[i]) / (unwrapped[i + 1] - unwrapped[i])
+        lat_x = lat[i] + frac * (lat[i + 1] - lat[i])
+        east = sheet[i + 1] > sheet[i]
+        seg_lat = lat[start : i + 1]
+        seg_lon = unwrapped[start : i + 1] - 360.0 * sheet[i]
+        if entry is not None:
+            seg_lat = np.concatenate([[entry[0]], seg_lat])
+            seg_lon = np.concatenate([[entry[1]], seg_lon])
+        pieces.append((np.append(seg_lat, lat_x), np.append(seg_lon, 180.0 if east else -180.0)))
+        entry = (lat_x, -180.0 if east else 180.0)
+        start = i + 1
+    seg_lat = lat[start:]
+    seg_lon = unwrapped[start:] - 360.0 * sheet[-1]
+    if entry is not None:
+        seg_lat = np.concatenate([[entry[0]], seg_lat])
+        seg_lon = np.concatenate([[entry[1]], seg_lon])
+    pieces.append((seg_lat, seg_lon))
+    return pieces
+
+
+def _group_colours(groups: np.ndarray):
+    import matplotlib as mpl
+
+    n = int(groups.max()) + 1 if groups.size else 1
+    if n <= 10:
+        colours = mpl.colormaps["tab10"].colors[:n]
+    elif n <= 20:
+        colours = mpl.colormaps["tab20"].colors[:n]
+    else:
+        colours = mpl.colormaps["viridis"](np.linspace(0.0, 0.9, n))
+    return [colours[g] for g in groups]
+
+
+def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, planes=None,
+                       ax=None, projection="plate_carree", title: str | None = None,
+                       caption: str | None = None, max_sats: int = 24,
+                       centre_lon_deg: float = 0.0):
+    """Draw sub-satellite tracks on a map with coastlines, one colour per orbital plane.
+
+    Parameters
+    ----------
+    lat_deg, lon_deg : array_like, shape (n_sat, n_t)
+        Sub-satellite latitude [deg] and longitude [deg], e.g. from :func:`ground_track`.
+    ids : sequence of str, optional
+        Satellite names (shown in the legend when there are no planes and few satellites).
+    planes : array_like of int, shape (n_sat,), optional
+        Plane number of each satellite (see :func:`plane_numbers`); sets the colours.
+    ax : cartopy GeoAxes, optional
+        Axes to draw on; without one a report figure of :data:`TRACK_FIGSIZE_IN` is made.
+    projection : str or cartopy.crs.Projection
+        Map projection name (see :data:`covergrid.render.maps.PROJECTIONS`).
+    title, caption : str, optional
+        Title (default "Ground tracks") and caption (new figures only).
+    max_sats : int
+        Draw at most this many satellites, spread evenly over the planes (the title says so).
+    centre_lon_deg : float
+        Central longitude of the projection [deg].
+
+    Returns
+    -------
+    list of matplotlib.lines.Line2D
+        The track lines (start markers excluded).
+    """
+    import cartopy.crs as ccrs
+    import matplotlib.pyplot as plt
+
+    from covergrid.render.maps import _prepare_axes, get_projection
+
+    lat = np.atleast_2d(np.asarray(lat_deg, dtype=float))
+    lon = np.atleast_2d(np.asarray(lon_deg, dtype=float))
+    if lat.shape != lon.shape:
+        raise CovergridError(f"shape {lon.shape} differs from lat_deg's {lat.shape}",
+                             field="lon_deg")
+    n_sat = lat.shape[0]
+    if lat.shape[1] < 1:
+        raise CovergridError("no times: the tracks have zero samples", field="lat_deg")
+    if ids is not None and len(ids) != n_sat:
+        raise CovergridError(f"{len(ids)} ids for {n_sat} satellites", field="ids")
+    if int(max_sats) < 1:
+        raise CovergridError(f"{max_sats!r} must be at least 1", field="max_sats")
+    groups = (np.arange(n_sat) if planes is None else np.asarray(planes, dtype=int).reshape(-1))
+    if groups.shape != (n_sat,):
+        raise CovergridError(f"{groups.size} plane numbers for {n_sat} satellites",
+                             field="planes")
+    shown = np.arange(n_sat)
+    if n_sat > max_sats:
+        # Take satellites round-robin across planes so every plane stays visible.
+        order = np.lexsort((np.arange(n_sat), groups))
+        rank = np.empty(n_sat, dtype=int)
+        for g in np.unique(groups):
+            members = order[groups[order] == g]
+            rank[members] = np.arange(members.size)
+        shown = np.lexsort((groups, rank))[: int(max_sats)]
+        shown.sort()
+    colours = _group_colours(groups)
+
+    with style.report_style():
+        if ax is None:
+            crs = get_projection(projection, centre_lon_deg=centre_lon_deg)
+            fig = plt.figure(figsize=TRACK_FIGSIZE_IN)
+            ax = fig.add_axes((0.06, 0.18, 0.74, 0.72), projection=crs)
+            own_figure = True
+        else:
+            fig, own_figure = ax.figure, False
+        name = projection if own_figure and isinstance(projection, str) else None
+        ax.add_geometries([land_geometry("110m")], crs=ccrs.PlateCarree(), facecolor="0.92",
+                          edgecolor="none", zorder=0)
+        _prepare_axes(ax, name, (-90.0, 90.0))
+        lines = []
+        labelled = set()
+        for s in shown:
+            label = None
+            if planes is not None and groups[s] not in labelled:
+                label = f"plane {groups[s] + 1}"
+                labelled.add(groups[s])
+            elif planes is None and ids is not None and n_sat <= 12:
+                label = ids[s]
+            for n, (plat, plon) in enumerate(split_at_antimeridian(lat[s], lon[s])):
+                (line,) = ax.plot(plon, plat, color=colours[s], linewidth=0.9,
+                                  transform=ccrs.PlateCarree(), zorder=5,
+                                  label=label if n == 0 else None)
+                lines.append(line)
+            ax.plot(lon[s, 0], lat[s, 0], marker="o", markersize=3.5, color=colours[s],
+                    markeredgecolor="black", markeredgewidth=0.4,
+                    transform=ccrs.PlateCarree(), zorder=6)
+        if title is None:
+            title = "Ground tracks"
+            if shown.size < n_sat:
+                title += f" ({shown.size} of {n_sat} satellites)"
+        ax.set_title(title, pad=8)
+        if any(line.get_label() and not line.get_label().startswith("_") for line in lines):
+            ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False,
+                      fontsize=7, title="start: \u25cf", title_fontsize=7)
+        if own_figure:
+            style.add_caption(fig, caption)
+    return lines
+
+
+def save_ground_tracks(lat_deg, lon_deg, out_dir, *, stem: str = "ground_tracks",
+                       caption: str | None = None, **kwargs) -> list[Path]:
+    """Write the ground-track figure as ``out_dir/<stem>.png`` (200 dpi) and ``.pdf``.
+
+    Parameters
+    ----------
+    lat_deg, lon_deg : array_like, shape (n_sat, n_t)
+        Sub-satellite latitude and longitude [deg].
+    out_dir : path-like
+        Folder to write into (made if missing).
+    stem : str
+        File name without suffix.
+    caption : str, optional
+        Caption text.
+    **kwargs
+        Passed to :func:`plot_ground_tracks` (ids, planes, projection, title, max_sats ...).
+
+    Returns
+    -------
+    list of pathlib.Path
+        The PNG and PDF paths.
+    """
+    import matplotlib.pyplot as plt
+
+    lines = plot_ground_tracks(lat_deg, lon_deg, caption=caption, **kwargs)
+    fig = lines[0].axes.figure
+    try:
+        return [style.atomic_savefig(fig, Path(os.fspath(out_dir)) / f"{stem}{suffix}")
+                for suffix in (".png", ".pdf")]
+    finally:
+        plt.close(fig)
