@@ -49,6 +49,8 @@ DEFAULT_MAP_METRICS = ("coverage_fraction", "max_gap", "mean_response_time", "me
 _ADDRESS_RE = re.compile(r"^(tcp|tls)://[A-Za-z0-9_.\-\[\]:]+:[0-9]{1,5}$")
 _NAME_RE = re.compile(r"^[A-Za-z0-9_.\-]+$")
 _STUDY_NAME_MAX = 100
+# The span must be a whole number of steps to this relative precision (as the engine asks).
+STEP_COUNT_TOLERANCE = 1e-6
 
 
 class _Problems(ValueError):
@@ -287,7 +289,7 @@ class ConstellationGroup(_Model):
 class SensorSpec(_Model):
     """What a satellite can see: a cell is covered when every given limit holds."""
 
-    min_elevation_deg: float = Field(10.0, ge=0.0, le=90.0,
+    min_elevation_deg: float = Field(10.0, ge=0.0, lt=90.0,
                                      description="Minimum elevation seen from the cell [deg].")
     max_off_nadir_deg: float | None = Field(None, gt=0.0, lt=90.0,
                                             description="Sensor half-cone angle [deg].")
@@ -369,7 +371,7 @@ class MapsSpec(_Model):
         problems = [((i,), f"unknown metric{_hint(m, names)}; allowed: {', '.join(names)}", m)
                     for i, m in enumerate(value) if names and m not in names]
         if problems:
-            raise _Problems([(("metrics",) + p, msg, v) for p, msg, v in problems])
+            raise _Problems(problems)
         return value
 
 
@@ -468,6 +470,12 @@ class Study(_Model):
         if self.step_s > span_s:
             problems.append((("step_s",), f"must not exceed the span duration_h x 3600 = "
                              f"{span_s:g} s", self.step_s))
+        else:
+            n = span_s / self.step_s
+            if abs(n - round(n)) > STEP_COUNT_TOLERANCE * n:
+                problems.append((("step_s",), f"must divide the span {span_s:g} s into a whole "
+                                 f"number of steps (it gives {n:.4f}); allowed: e.g. "
+                                 f"{_dividing_steps(span_s, self.step_s)}", self.step_s))
         seen: dict[str, tuple] = {}
         for gi, group in enumerate(self.constellation):
             for si, sat in enumerate(group.satellites or []):
@@ -501,8 +509,8 @@ class Study(_Model):
 
     @property
     def n_steps(self) -> int:
-        """Number of time samples, both ends included."""
-        return int(math.floor(self.duration_s / self.step_s + 1e-9)) + 1
+        """Number of time samples N (the span is N x step_s, sampled at 0 .. N-1 steps)."""
+        return max(1, int(round(self.duration_s / self.step_s)))
 
     @property
     def n_satellites(self) -> int:
@@ -538,13 +546,14 @@ class Study(_Model):
                 sets.append(_group_elements(w, group, prefix))
             except ElementError as exc:
                 raise StudyError(str(exc), field=format_path(("constellation", gi))) from None
-        es = sets[0] if len(sets) == 1 else w.ElementSet.concat(sets)
-        dup = _first_duplicate(es.ids)
+        all_ids = [i for s in sets for i in s.ids]
+        dup = _first_duplicate(all_ids)
         if dup is not None:
-            raise StudyError(f"duplicate satellite id {dup!r} (a generated Walker id clashes "
-                             "with another); give the groups distinct names",
+            raise StudyError(f"duplicate satellite id {dup!r} (a generated Walker id "
+                             "<group>-P<plane>-<slot> clashes with another id); give the groups "
+                             "distinct names or the satellites distinct ids",
                              field="constellation")
-        return es
+        return sets[0] if len(sets) == 1 else w.ElementSet.concat(sets)
 
     def resolved_dict(self) -> dict:
         """The study with every default filled in, as plain data."""
@@ -556,10 +565,13 @@ class Study(_Model):
 
 
 def _group_prefix(group: ConstellationGroup, index: int, n_groups: int) -> str:
-    """Id prefix of a Walker group's satellites: its name, else S (one group) or G<n>S."""
+    """Id prefix of a Walker group's satellites (ids ``<prefix>-P<plane>-<slot>``).
+
+    The group's name, else ``S`` for a single group or ``G<n>`` (n counted from 1).
+    """
     if group.name is not None:
-        return f"{group.name}-"
-    return "S" if n_groups == 1 else f"G{index + 1}S"
+        return group.name
+    return "S" if n_groups == 1 else f"G{index + 1}"
 
 
 def _group_elements(w, group: ConstellationGroup, prefix: str):
@@ -613,6 +625,13 @@ def _keplerian_set(w, sats: list[SatelliteSpec], ids: tuple[str, ...]):
                                 mean_anomaly_rad=arr(lambda s: s.mean_anomaly_deg) * DEG, ids=ids)
     parts = [_keplerian_set(w, [s], (sid,)) for s, sid in zip(sats, ids, strict=True)]
     return w.ElementSet.concat(parts)
+
+
+def _dividing_steps(span_s: float, step_s: float) -> str:
+    """A few steps near ``step_s`` that divide the span into whole steps [s]."""
+    n = span_s / step_s
+    options = sorted({span_s / max(1, math.floor(n)), span_s / math.ceil(n)})
+    return " or ".join(f"{x:g} s" for x in options)
 
 
 def _first_duplicate(ids) -> str | None:
@@ -750,19 +769,32 @@ def _field_info(loc: tuple):
     return model.model_fields.get(loc[-1])
 
 
+def _constraints(info) -> list:
+    """Every constraint object (Gt, Le, MinLen ...) of a field, through Optional/Annotated."""
+    found: list = []
+
+    def walk(obj) -> None:
+        for m in getattr(obj, "metadata", ()) or ():
+            found.append(m)
+        for m in getattr(obj, "__metadata__", ()) or ():
+            walk(m) if hasattr(m, "metadata") else found.append(m)
+        for arg in typing.get_args(obj):
+            if arg is not type(None):
+                walk(arg)
+
+    walk(info)
+    walk(info.annotation)
+    return found
+
+
 def _field_bounds(loc: tuple) -> str:
-    """Both bounds of a numeric field as text ("0 < x <= 90"), from its metadata."""
+    """Both bounds of a numeric field as text ("0 < value <= 90"), from its metadata."""
     info = _field_info(loc)
     if info is None:
         return ""
     lo = hi = None
     lo_op = hi_op = ""
-    metas = list(info.metadata)
-    for arg in typing.get_args(info.annotation):
-        metas += list(getattr(arg, "__metadata__", ()))
-        for sub in typing.get_args(arg):
-            metas += list(getattr(sub, "metadata", ()))
-    for m in metas:
+    for m in _constraints(info):
         for attr, op in (("gt", "<"), ("ge", "<=")):
             if getattr(m, attr, None) is not None:
                 lo, lo_op = getattr(m, attr), op
@@ -782,10 +814,7 @@ def _length_bounds(loc: tuple) -> tuple[int, int | None]:
     info = _field_info(loc)
     lo, hi = 1, None
     if info is not None:
-        metas = list(info.metadata)
-        for arg in typing.get_args(info.annotation):
-            metas += list(getattr(arg, "__metadata__", ()))
-        for m in metas:
+        for m in _constraints(info):
             lo = getattr(m, "min_length", None) or lo
             hi = getattr(m, "max_length", None) or hi
     return lo, hi

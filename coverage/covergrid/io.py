@@ -246,7 +246,8 @@ def netcdf_encoding(ds, complevel: int = 4) -> dict[str, dict[str, Any]]:
 
     Coordinates and bounds get no ``_FillValue`` (CF 1.8 sec. 2.5.1: a coordinate variable
     must not hold missing values); float metrics get the netCDF default double fill value so
-    NaN cells are marked missing; integer counts are never missing and get none.
+    NaN cells are marked missing; integer counts are never missing and get none; 64-bit
+    integers (not among the CF 1.8 sec. 2.2 data types) are stored as doubles.
     """
     enc: dict[str, dict[str, Any]] = {}
     for name, var in ds.variables.items():
@@ -260,6 +261,10 @@ def netcdf_encoding(ds, complevel: int = 4) -> dict[str, dict[str, Any]]:
             e["_FillValue"] = FILL_DOUBLE if var.dtype == np.float64 else np.float32(FILL_DOUBLE)
         elif var.dtype.kind in "iub":
             e["_FillValue"] = None
+            if var.dtype.itemsize == 8:
+                # CF 1.8 sec. 2.2 lists no 64-bit integers; a double holds counts exactly
+                # up to 2**53.
+                e["dtype"] = "f8"
         enc[name] = e
     return enc
 

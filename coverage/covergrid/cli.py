@@ -1,0 +1,315 @@
+"""The ``covergrid`` command line: a thin layer over :mod:`covergrid.pipeline`.
+
+Commands: ``run`` (compute a study and write its outputs), ``check`` (validate and estimate
+without computing), ``elements`` (state vector <-> Keplerian elements for one orbit) and
+``schema`` (print the study file's JSON Schema).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from collections.abc import Sequence
+
+from covergrid import __version__
+from covergrid.errors import CovergridError
+
+__all__ = ["main", "build_parser"]
+
+EXIT_OK = 0
+EXIT_REQUIREMENT_NOT_MET = 1
+EXIT_BAD_INPUT = 2
+EXIT_INTERRUPTED = 130
+
+_EPILOG = """\
+exit status:
+  0  success (and, for run, the study's requirement is met or none is given)
+  1  run: the study's requirement is not met (all outputs are still written)
+  2  bad input: invalid study file or option, not enough memory, output folder not
+     writable; one message on stderr names the field by its dotted path; nothing written
+  130 interrupted (Ctrl-C); no partial file is left at a final path
+"""
+
+
+class _Parser(argparse.ArgumentParser):
+    """ArgumentParser whose usage errors read like ours (one line, exit status 2)."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        self.exit(EXIT_BAD_INPUT, f"covergrid: error: {message} (see {self.prog} --help)\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``covergrid`` command."""
+    fmt = argparse.RawDescriptionHelpFormatter
+    p = _Parser(prog="covergrid", formatter_class=fmt, epilog=_EPILOG, allow_abbrev=False,
+                description="Satellite-constellation coverage analysis on a global grid.")
+    p.add_argument("--version", action="version", version=f"covergrid {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+
+    r = sub.add_parser("run", help="compute a study and write its outputs", epilog=_EPILOG,
+                       formatter_class=fmt,
+                       description="Compute a study's coverage metrics and write DIR/<study>/: "
+                       "coverage.nc, summary.json, summary.csv, study.resolved.yaml, maps/.")
+    r.add_argument("study", metavar="STUDY.yaml", help="the study file")
+    r.add_argument("--out", metavar="DIR", default="outputs",
+                   help="output root; results go to DIR/<study>/ (default: outputs)")
+    r.add_argument("--scheduler", metavar="NAME",
+                   help="override compute.scheduler: threads, synchronous, processes, "
+                   "local-cluster or tcp://host:port")
+    r.add_argument("--force", action="store_true",
+                   help="run even if the memory estimate exceeds the memory available")
+    r.add_argument("--no-maps", action="store_true", help="skip the figures")
+    r.add_argument("--quiet", action="store_true", help="no progress bar and no report")
+
+    c = sub.add_parser("check", help="validate a study and estimate its cost", epilog=_EPILOG,
+                       formatter_class=fmt,
+                       description="Validate a study file and print what a run would compute "
+                       "(satellites, steps, cells, estimated work and memory) without "
+                       "computing it.")
+    c.add_argument("study", metavar="STUDY.yaml", help="the study file")
+    c.add_argument("--json", action="store_true", help="print the estimate as JSON")
+
+    e = sub.add_parser(
+        "elements", help="convert one orbit between state vector and Keplerian elements",
+        epilog=_EPILOG, formatter_class=fmt,
+        description="Give --position-km and --velocity-km-s to get the Keplerian elements, or "
+        "--a-km, --e, --i-deg, --raan-deg, --argp-deg and --nu-deg (or --mean-anomaly-deg) "
+        "to get the inertial position and velocity.")
+    e.add_argument("--position-km", nargs=3, type=float, metavar=("X", "Y", "Z"))
+    e.add_argument("--velocity-km-s", nargs=3, type=float, metavar=("VX", "VY", "VZ"))
+    e.add_argument("--a-km", type=float, help="semi-major axis [km]")
+    e.add_argument("--altitude-km", type=float, help="a minus the WGS-84 equatorial radius [km]")
+    e.add_argument("--e", type=float, default=None, help="eccentricity (default 0)")
+    e.add_argument("--i-deg", type=float, help="inclination [deg]")
+    e.add_argument("--raan-deg", type=float, default=0.0, help="RAAN [deg] (default 0)")
+    e.add_argument("--argp-deg", type=float, default=0.0,
+                   help="argument of perigee [deg] (default 0)")
+    e.add_argument("--nu-deg", type=float, help="true anomaly [deg]")
+    e.add_argument("--mean-anomaly-deg", type=float, help="mean anomaly [deg]")
+    e.add_argument("--mu-km3-s2", type=float, default=None,
+                   help="gravitational parameter [km^3/s^2] (default WGS 84: 398600.4418)")
+
+    sub.add_parser("schema", help="print the JSON Schema of a study file", epilog=_EPILOG,
+                   formatter_class=fmt,
+                   description="Print the JSON Schema (draft 2020-12) of a study file, for "
+                   "editors that check YAML against a schema.")
+    return p
+
+
+def _fail(message: str) -> int:
+    sys.stderr.write(f"covergrid: error: {message}\n")
+    return EXIT_BAD_INPUT
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the ``covergrid`` command; returns the exit status (see ``covergrid --help``)."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # --help, --version and usage errors
+        return int(exc.code or 0) if isinstance(exc.code, int) else EXIT_BAD_INPUT
+    try:
+        if args.command == "run":
+            return _cmd_run(args)
+        if args.command == "check":
+            return _cmd_check(args)
+        if args.command == "elements":
+            return _cmd_elements(args)
+        if args.command == "schema":
+            return _cmd_schema()
+    except CovergridError as exc:
+        return _fail(str(exc))
+    except KeyboardInterrupt:
+        sys.stderr.write("covergrid: interrupted\n")
+        return EXIT_INTERRUPTED
+    raise AssertionError(f"unhandled command {args.command!r}")  # argparse guards this
+
+
+def _cmd_run(args: argparse.Namespace) -> int:
+    from covergrid.pipeline import load_study, run_study
+
+    study = load_study(args.study)
+    result = run_study(study, args.out, progress=not args.quiet, scheduler=args.scheduler,
+                       maps=not args.no_maps, force=args.force)
+    verdict = result.summary.get("requirement")
+    if not args.quiet:
+        print(f"covergrid: wrote {len(result.files)} files to {result.out_dir}")
+        if verdict is not None:
+            print(_verdict_text(verdict))
+    if verdict is not None and not verdict["met"]:
+        return EXIT_REQUIREMENT_NOT_MET
+    return EXIT_OK
+
+
+def _verdict_text(v: dict) -> str:
+    sense = "<=" if v["sense"] == "at_most" else ">="
+    name = v["metric"] + (f"[k={v['k']}]" if v["k"] is not None else "")
+    units = f" {v['units']}" if v["units"] not in ("", "1") else ""
+    state = "MET" if v["met"] else "NOT MET"
+    return (f"requirement {name} {sense} {v['threshold']:g}{units} over "
+            f"{100 * v['area_fraction']:g} % of the area: {state} (achieved "
+            f"{v['achieved']:g}{units}, margin {v['margin']:+g}{units}; "
+            f"{100 * v['area_fraction_met']:.1f} % of the area meets it)")
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    from covergrid.pipeline import check_resources, estimate, load_study
+
+    study = load_study(args.study)
+    est = estimate(study)
+    if args.json:
+        print(json.dumps(est, indent=2))
+    else:
+        print(_estimate_text(study, est))
+    check_resources(study, est)
+    return EXIT_OK
+
+
+def _estimate_text(study, est: dict) -> str:
+    def gb(n):
+        return "unknown" if n is None else f"{n / 2**30:.2f} GB"
+
+    groups = []
+    for g in study.constellation:
+        if g.walker is not None:
+            w, t = g.walker, g.template
+            alt = t.a_km - 6378.137
+            groups.append(f"Walker {w.pattern} {w.total}/{w.planes}/{w.phasing} at "
+                          f"{alt:.0f} km, {t.inclination_deg:g} deg")
+        else:
+            groups.append(f"{len(g.satellites)} listed satellite(s)")
+    s = study.sensor
+    limits = [f"min elevation {s.min_elevation_deg:g} deg"]
+    if s.max_off_nadir_deg is not None:
+        limits.append(f"max off-nadir {s.max_off_nadir_deg:g} deg")
+    if s.max_range_km is not None:
+        limits.append(f"max range {s.max_range_km:g} km")
+    lines = [
+        f"study {study.study}: valid",
+        f"  constellation   {est['satellites']} satellites: " + "; ".join(groups),
+        f"  sensor          {', '.join(limits)}",
+        f"  span            {study.duration_h:g} h from {study.epoch}, step {study.step_s:g} s"
+        f" -> {est['steps']:,} samples",
+        f"  grid            {study.grid.resolution_deg:g} deg, latitudes "
+        f"{study.grid.lat_min_deg:g} to {study.grid.lat_max_deg:g} deg -> "
+        f"{est['grid_rows']} x {est['grid_columns']} = {est['cells']:,} cells",
+        f"  work            about {est['visits']:.3g} satellite-sample-cell visibilities in "
+        f"{est['bands']} latitude bands",
+        f"  memory          about {gb(est['memory_bytes'])} (limit {gb(est['memory_limit_bytes'])}"
+        f", available {gb(est['memory_available_bytes'])})",
+    ]
+    if study.requirement is not None:
+        r = study.requirement
+        sense = ("at most", r.at_most) if r.at_most is not None else ("at least", r.at_least)
+        k = f" (k = {r.k})" if r.k is not None else ""
+        lines.append(f"  requirement     {r.metric}{k} {sense[0]} {sense[1]:g} over "
+                     f"{100 * r.area_fraction:g} % of the area")
+    return "\n".join(lines)
+
+
+def _cmd_elements(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from covergrid.constants import DEG, MU_EARTH_KM3_S2, WGS84_A_KM
+    from covergrid.orbits.elements import (
+        cartesian_to_kepler,
+        kepler_to_cartesian,
+        mean_to_true,
+        true_to_mean,
+    )
+
+    mu = MU_EARTH_KM3_S2 if args.mu_km3_s2 is None else args.mu_km3_s2
+    if not (math.isfinite(mu) and mu > 0):
+        return _fail(f"--mu-km3-s2: must be a positive number; got {mu!r}")
+    state_given = args.position_km is not None or args.velocity_km_s is not None
+    kepler_given = [n for n in ("a_km", "altitude_km", "e", "i_deg", "nu_deg",
+                                "mean_anomaly_deg") if getattr(args, n) is not None]
+    if state_given and kepler_given:
+        return _fail(f"--{kepler_given[0].replace('_', '-')}: give either a state vector "
+                     "(--position-km, --velocity-km-s) or elements, not both")
+    if state_given:
+        if args.position_km is None or args.velocity_km_s is None:
+            missing = "--position-km" if args.position_km is None else "--velocity-km-s"
+            return _fail(f"{missing}: is required with a state vector (three numbers)")
+        r = np.array(args.position_km)
+        v = np.array(args.velocity_km_s)
+        if not (np.all(np.isfinite(r)) and np.all(np.isfinite(v))):
+            return _fail("--position-km/--velocity-km-s: must be finite numbers")
+        k = cartesian_to_kepler(r, v, mu)
+        a = float(k.a_km)
+        e = float(k.e)
+        rows = [
+            ("semi-latus rectum p", f"{float(k.p_km):.6f}", "km"),
+            ("semi-major axis a", f"{a:.6f}", "km"),
+            ("eccentricity e", f"{e:.8f}", ""),
+            ("inclination i", f"{float(k.i_rad) / DEG:.6f}", "deg"),
+            ("RAAN", f"{float(k.raan_rad) / DEG:.6f}", "deg"),
+            ("argument of perigee", f"{float(k.argp_rad) / DEG:.6f}", "deg"),
+            ("true anomaly nu", f"{float(k.nu_rad) / DEG:.6f}", "deg"),
+        ]
+        if e < 1.0 and a > 0:
+            mean = float(true_to_mean(k.nu_rad, k.e)) % (2 * math.pi)
+            rows += [
+                ("mean anomaly M", f"{mean / DEG:.6f}", "deg"),
+                ("period", f"{2 * math.pi * math.sqrt(a**3 / mu):.3f}", "s"),
+                ("perigee altitude", f"{a * (1 - e) - WGS84_A_KM:.3f}", "km"),
+                ("apogee altitude", f"{a * (1 + e) - WGS84_A_KM:.3f}", "km"),
+            ]
+        else:
+            rows.append(("orbit", "open (e >= 1): no period or apogee", ""))
+        print(_table(rows))
+        return EXIT_OK
+    if not kepler_given:
+        return _fail("elements: give --position-km and --velocity-km-s, or --a-km (or "
+                     "--altitude-km), --i-deg and --nu-deg (or --mean-anomaly-deg); see "
+                     "covergrid elements --help")
+    if (args.a_km is None) == (args.altitude_km is None):
+        return _fail("--a-km: give exactly one of --a-km or --altitude-km")
+    a = args.a_km if args.a_km is not None else WGS84_A_KM + args.altitude_km
+    e = 0.0 if args.e is None else args.e
+    if args.i_deg is None:
+        return _fail("--i-deg: is required with elements (0 to 180 deg)")
+    if (args.nu_deg is None) == (args.mean_anomaly_deg is None):
+        return _fail("--nu-deg: give exactly one of --nu-deg or --mean-anomaly-deg")
+    if not (math.isfinite(e) and 0.0 <= e < 1.0):
+        return _fail(f"--e: must be in [0, 1) for a closed orbit; got {e!r}")
+    if not (math.isfinite(a) and a * (1 - e) > WGS84_A_KM):
+        return _fail(f"--a-km: the perigee radius a(1-e) = {a * (1 - e):.3f} km must exceed "
+                     f"{WGS84_A_KM} km; got a = {a!r}")
+    if not 0.0 <= args.i_deg <= 180.0:
+        return _fail(f"--i-deg: must be in [0, 180]; got {args.i_deg!r}")
+    nu = (args.nu_deg * DEG if args.nu_deg is not None
+          else float(mean_to_true(args.mean_anomaly_deg * DEG, e)))
+    r, v = kepler_to_cartesian(a, e, args.i_deg * DEG, args.raan_deg * DEG,
+                               args.argp_deg * DEG, nu, mu)
+    r = np.asarray(r, dtype=float).ravel()
+    v = np.asarray(v, dtype=float).ravel()
+    rows = [
+        ("position r", " ".join(f"{x:.6f}" for x in r), "km"),
+        ("velocity v", " ".join(f"{x:.9f}" for x in v), "km/s"),
+        ("|r|", f"{np.linalg.norm(r):.6f}", "km"),
+        ("|v|", f"{np.linalg.norm(v):.9f}", "km/s"),
+        ("true anomaly nu", f"{nu / DEG:.6f}", "deg"),
+        ("period", f"{2 * math.pi * math.sqrt(a**3 / mu):.3f}", "s"),
+    ]
+    print(_table(rows))
+    return EXIT_OK
+
+
+def _table(rows) -> str:
+    width = max(len(r[0]) for r in rows)
+    return "\n".join(f"{name:<{width}}  {value} {unit}".rstrip() for name, value, unit in rows)
+
+
+def _cmd_schema() -> int:
+    from covergrid.config import export_schema
+
+    sys.stdout.write(json.dumps(export_schema(), indent=2) + "\n")
+    return EXIT_OK
+
+
+if __name__ == "__main__":
+    sys.exit(main())
