@@ -267,11 +267,13 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
             cbar = fig.colorbar(mesh, ax=ax, shrink=0.8, ticks=ticks)
         cbar.set_label(style.metric_label(metric, da.attrs, unit, k=fold))
         cbar.outline.set_linewidth(0.5)
+        if cbar.solids is not None:  # matplotlib rasterises long colour bars; keep it vector
+            cbar.solids.set_rasterized(False)
+            cbar.solids.set_edgecolor("face")
         if title is None:
-            title = str(da.attrs.get("long_name") or metric.replace("_", " "))
+            title = style.fold_text(str(da.attrs.get("long_name") or metric.replace("_", " ")),
+                                    fold)
             title = title[:1].upper() + title[1:]
-            if fold is not None:
-                title += f", at least {fold} satellite{'s' if fold > 1 else ''} in view"
         ax.set_title(title, pad=8)
         if own_figure:
             style.add_caption(fig, caption)
@@ -421,7 +423,8 @@ def design_caption(study_like: Mapping) -> str:
     if "inclination_deg" in s:
         design.append(f"inclination {_fmt(s['inclination_deg'], 2)}\u00b0")
     if design:
-        sentences.append(", ".join(design) + ".")
+        first = ", ".join(design)
+        sentences.append(first[:1].upper() + first[1:] + ".")
     sensor = []
     if "min_elevation_deg" in s:
         sensor.append(f"minimum elevation {_fmt(s['min_elevation_deg'])}\u00b0")

@@ -13,8 +13,8 @@ a reader can tell kinds apart across a report:
 Each map is oriented so that **the bright (yellow) end always means good**: for a metric where
 higher is better the map runs dark -> bright with the value; where lower is better (gaps, response
 time) the reversed map is used, so a short gap is bright. Which way is better comes from the
-metric registry ``covergrid.metrics.METRICS`` (field ``better``); for names it does not know, the
-small table ``LOWER_IS_BETTER`` below decides, and anything else counts as higher-is-better.
+metric registry ``covergrid.metrics.METRICS`` (field ``better``); a variable it does not list is
+drawn as higher-is-better.
 
 Display units
 -------------
@@ -39,12 +39,12 @@ import numpy as np
 __all__ = [
     "DPI",
     "FOOTER",
-    "LOWER_IS_BETTER",
     "DisplayUnit",
     "add_caption",
     "atomic_savefig",
     "colormap_for",
     "display_unit",
+    "fold_text",
     "is_lower_better",
     "line_colour",
     "metric_kind",
@@ -57,11 +57,6 @@ DPI = 200
 
 #: Footer carried by every figure.
 FOOTER = "Design study result: secular J2, mean elements; not for operations."
-
-#: Metrics where a lower value is better, used when the metric registry does not say.
-LOWER_IS_BETTER = frozenset(
-    {"max_gap", "mean_gap", "gap_count", "time_average_gap", "mean_response_time"}
-)
 
 # Font sizes [pt] of the report style.
 _FONT_PT = {"base": 9.0, "title": 11.0, "caption": 8.0, "footer": 6.5}
@@ -115,7 +110,7 @@ def metric_kind(name: str, units: str | None) -> str:
 
 
 def is_lower_better(name: str) -> bool:
-    """Whether a lower value of metric ``name`` is better (registry first, then local table).
+    """Whether a lower value of metric ``name`` is better, per ``covergrid.metrics.METRICS``.
 
     Parameters
     ----------
@@ -125,16 +120,12 @@ def is_lower_better(name: str) -> bool:
     Returns
     -------
     bool
-        True for gap-like metrics.
+        True for gap-like metrics; False for metrics the registry does not list.
     """
-    try:
-        from covergrid.metrics import METRICS  # the registry, when present
-    except ImportError:
-        METRICS = {}
+    from covergrid.metrics import METRICS
+
     info = METRICS.get(name)
-    if info is not None and getattr(info, "better", None) in ("lower", "higher"):
-        return info.better == "lower"
-    return name in LOWER_IS_BETTER
+    return info is not None and info.better == "lower"
 
 
 def colormap_for(name: str, units: str | None, *, cmap=None):
@@ -160,9 +151,7 @@ def colormap_for(name: str, units: str | None, *, cmap=None):
         base = _FAMILY_CMAP[metric_kind(name, units)]
         cmap = base + "_r" if is_lower_better(name) else base
     colormap = mpl.colormaps[cmap] if isinstance(cmap, str) else cmap
-    colormap = colormap.copy()
-    colormap.set_bad((0.0, 0.0, 0.0, 0.0))
-    return colormap
+    return colormap.with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
 
 
 def line_colour(name: str, units: str | None):
@@ -249,10 +238,35 @@ def metric_label(name: str, attrs: Mapping, unit: DisplayUnit, *, k: int | None 
     str
         For example ``"maximum gap [min]"``.
     """
-    text = str(attrs.get("long_name") or name.replace("_", " "))
-    if k is not None:
-        text += f" (k \u2265 {k})"
+    text = fold_text(str(attrs.get("long_name") or name.replace("_", " ")), k)
     return f"{text} [{unit.label}]" if unit.label else text
+
+
+def fold_text(text: str, k: int | None) -> str:
+    """Put the fold into a long name: "at least k satellites" -> "at least 2 satellites".
+
+    Parameters
+    ----------
+    text : str
+        Long name, possibly with the placeholder word ``k``.
+    k : int or None
+        Fold; None leaves the text unchanged.
+
+    Returns
+    -------
+    str
+        The text with the first stand-alone ``k`` replaced, or ``" (k = 2)"`` appended.
+    """
+    if k is None:
+        return text
+    words = text.split(" ")
+    if "k" in words:
+        at = words.index("k")
+        words[at] = str(int(k))
+        if int(k) == 1 and at + 1 < len(words) and words[at + 1] == "satellites":
+            words[at + 1] = "satellite"
+        return " ".join(words)
+    return f"{text} (k = {int(k)})"
 
 
 def add_caption(fig, caption: str | None, *, footer: str = FOOTER, width_chars=None) -> None:
