@@ -193,6 +193,16 @@ def _bracketed_newton(
     return E
 
 
+def _sinh_minus_x(x: np.ndarray) -> np.ndarray:
+    """``sinh(x) - x`` without cancellation: Taylor series for ``|x| < 1``."""
+    x2 = x * x
+    series = 1.0 + x2 / 342.0
+    for d in (272.0, 210.0, 156.0, 110.0, 72.0, 42.0, 20.0):  # (2k + 2)(2k + 3)
+        series = 1.0 + x2 / d * series
+    with np.errstate(over="ignore", invalid="ignore"):
+        return np.where(np.abs(x) < 1.0, x * x2 / 6.0 * series, np.sinh(x) - x)
+
+
 def solve_kepler_hyperbolic(M_rad: ArrayLike, e: ArrayLike) -> np.ndarray:
     r"""Solve the hyperbolic Kepler equation for the hyperbolic anomaly.
 
@@ -237,7 +247,9 @@ def solve_kepler_hyperbolic(M_rad: ArrayLike, e: ArrayLike) -> np.ndarray:
         if active.size == 0:
             break
         Ha, ea, Mh = H[active], eg[active], Ma[active]
-        f = ea * np.sinh(Ha) - Ha - Mh
+        # e sinh H - H - M written as (e - 1) sinh H + (sinh H - H) - M: no cancellation
+        # near e = 1 with small H (near-parabolic orbits)
+        f = (ea - 1.0) * np.sinh(Ha) + _sinh_minus_x(Ha) - Mh
         fp = ea * np.cosh(Ha) - 1.0
         H_new = np.maximum(Ha - f / fp, lo[active])
         step = np.abs(H_new - Ha)
@@ -438,11 +450,13 @@ def hyperbolic_to_mean(H_rad: ArrayLike, e: ArrayLike) -> np.ndarray:
 
     Notes
     -----
-    Vallado, 5th ed., Eq. 2-38: :math:`M = e \sinh H - H`.
+    Vallado, 5th ed., Eq. 2-38: :math:`M = e \sinh H - H`, evaluated as
+    :math:`(e - 1) \sinh H + (\sinh H - H)` with a series for the bracket at small
+    ``H``, which keeps full relative precision for near-parabolic orbits.
     """
     H, e = _f64(H_rad, e)
     with np.errstate(over="ignore", invalid="ignore"):
-        M = e * np.sinh(H) - H
+        M = (e - 1.0) * np.sinh(H) + _sinh_minus_x(H)
     return _out(np.where(e > 1.0, M, np.nan))
 
 
