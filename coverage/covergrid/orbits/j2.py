@@ -8,8 +8,10 @@ last, ``(n_sat, n_t, 3)``.
 
 Backends: a numba kernel (default) and a pure NumPy fallback giving the same numbers to
 rounding. Set the environment variable ``COVERGRID_NUMBA=0`` (or pass ``backend="numpy"``)
-to use NumPy. The speed target and its measurement are in
-``tests/benchmarks/bench_propagation.py``.
+to use NumPy. The speed target (10,000 satellites x 1,440 epochs to Earth-fixed in < 1 s
+on one core) and its measurement are in ``tests/benchmarks/bench_propagation.py``: about
+18-26 ns per satellite-epoch for near-circular orbits (e < 0.045, where Kepler's equation
+needs no libm call), about 75 ns for eccentric ones, about 175-300 ns with NumPy.
 """
 
 from __future__ import annotations
@@ -439,23 +441,58 @@ def _kernel_py(
                 sin_e[k] = sm[k] * cd + cm[k] * sd
                 cos_e[k] = cm[k] * cd - sm[k] * sd
         else:
+            # Eccentric orbits, one time after another. Away from resync points the
+            # starter is predicted from the previous solution, d' = d + dM e cos E /
+            # (1 - e cos E) (dE/dM = 1 / (1 - e cos E)), and sin/cos of d advance by angle
+            # addition, so that libm is called only at resync points or after big jumps.
+            d = sd = cd = ce = 0.0
             for k in range(n_t):
-                if e_s > 0.3:  # Danby's starter E0 = M + 0.85 e sign(sin M)
-                    d = 0.85 * e_s * (1.0 if sm[k] > 0.0 else (-1.0 if sm[k] < 0.0 else 0.0))
-                else:
-                    d = e_s * sm[k] * (1.0 + e_s * cm[k])
-                se = ce = 0.0
-                for _ in range(_KEPLER_MAX_ITER):
+                fresh = k % _RESYNC_STEPS == 0
+                if not fresh:
+                    inc_d = m_dot[s] * (t[k] - t[k - 1]) * e_s * ce / (1.0 - e_s * ce)
+                    if abs(inc_d) < _SMALL_ANGLE_RAD:
+                        ss = _sin_series(inc_d)
+                        cs = _cos_series(inc_d)
+                        sd, cd = sd * cs + cd * ss, cd * cs - sd * ss
+                        d += inc_d
+                    else:
+                        fresh = True
+                if fresh:
+                    if e_s > 0.3:  # Danby's starter E0 = M + 0.85 e sign(sin M)
+                        d = 0.85 * e_s * (1.0 if sm[k] > 0.0 else (-1.0 if sm[k] < 0.0 else 0.0))
+                    else:
+                        d = e_s * sm[k] * (1.0 + e_s * cm[k])
                     sd, cd = _sincos(d)
+                converged = False
+                for _ in range(_KEPLER_MAX_ITER):
                     se = sm[k] * cd + cm[k] * sd
                     ce = cm[k] * cd - sm[k] * sd
                     step = (d - e_s * se) / (1.0 - e_s * ce)
                     d -= step
+                    if abs(step) < _SMALL_ANGLE_RAD:
+                        # sin/cos of d - step by angle subtraction: no libm call
+                        ss = _sin_series(step)
+                        cs = _cos_series(step)
+                        sd, cd = sd * cs - cd * ss, cd * cs + sd * ss
+                    else:
+                        sd, cd = _sincos(d)
                     if abs(step) <= _KEPLER_TOL_RAD:
+                        converged = True
                         break
-                sd, cd = _sincos(d)
+                if not converged and not fresh:  # predictor failed: start afresh (Danby)
+                    d = 0.85 * e_s * (1.0 if sm[k] > 0.0 else (-1.0 if sm[k] < 0.0 else 0.0))
+                    for _ in range(_KEPLER_MAX_ITER):
+                        sd, cd = _sincos(d)
+                        se = sm[k] * cd + cm[k] * sd
+                        ce = cm[k] * cd - sm[k] * sd
+                        step = (d - e_s * se) / (1.0 - e_s * ce)
+                        d -= step
+                        if abs(step) <= _KEPLER_TOL_RAD:
+                            break
+                    sd, cd = _sincos(d)
                 sin_e[k] = sm[k] * cd + cm[k] * sd
                 cos_e[k] = cm[k] * cd - sm[k] * sd
+                ce = cos_e[k]
         # 3. Position (and velocity) along the perifocal axes P, Q of (node, i, perigee).
         for k in range(n_t):
             xp = a_s * (cos_e[k] - e_s)
