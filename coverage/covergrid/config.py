@@ -898,6 +898,10 @@ def parse_yaml(text: str, source: str = "study file") -> Any:
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         what = " ".join(x for x in (exc.context, exc.problem) if x)
+        ctx = exc.context_mark
+        if ctx is not None and mark is not None and (ctx.line, ctx.column) != (mark.line,
+                                                                                mark.column):
+            what += f" (the construct starts at {_where(ctx)})"
         raise StudyError(f"{_where(mark)}: YAML syntax error: {what}", field=source) from None
     except yaml.YAMLError as exc:
         raise StudyError(f"YAML error: {exc}", field=source) from None
