@@ -622,10 +622,11 @@ def kepler_to_cartesian(
         raise ElementError(
             "give exactly one of a_km and p_km (a parabola needs p_km)", field="a_km"
         )
-    if p_km is None:
+    if a_km is not None:
         a, e_, i, raan, argp, nu = _f64(a_km, e, i_rad, raan_rad, argp_rad, nu_rad)
         p = a * (1.0 - e_ * e_)
     else:
+        assert p_km is not None  # guaranteed by the check above; narrows the type
         p, e_, i, raan, argp, nu = _f64(p_km, e, i_rad, raan_rad, argp_rad, nu_rad)
     cnu, snu = np.cos(nu), np.sin(nu)
     denom = 1.0 + e_ * cnu
@@ -807,9 +808,15 @@ def cartesian_to_kepler(
     otype[ce] = ORBIT_CIRCULAR_EQUATORIAL
     otype[degenerate] = ORBIT_DEGENERATE
 
-    fields = [p, a, e, i, raan, argp, nu, arglat, lonper, truelon]
-    fields = [_out(np.where(degenerate, np.nan, f)) for f in fields]
-    return KeplerElements(*fields, orbit_type=_out(otype))
+    names = ("p_km", "a_km", "e", "i_rad", "raan_rad", "argp_rad", "nu_rad", "arglat_rad")
+    values = (p, a, e, i, raan, argp, nu, arglat)
+    out = {k: _out(np.where(degenerate, np.nan, f)) for k, f in zip(names, values, strict=True)}
+    return KeplerElements(
+        **out,
+        lonper_rad=_out(np.where(degenerate, np.nan, lonper)),
+        truelon_rad=_out(np.where(degenerate, np.nan, truelon)),
+        orbit_type=_out(otype),
+    )
 
 
 # --------------------------------------------------------------------------------------

@@ -233,7 +233,22 @@ def _walker(
     )
 
 
-_WALKER_DOC = """
+def walker_delta(
+    total: int,
+    planes: int,
+    phasing: int,
+    *,
+    a_km: float,
+    e: float = 0.0,
+    i_rad: float,
+    raan0_rad: float = 0.0,
+    argp_rad: float = 0.0,
+    M0_rad: float = 0.0,
+    id_prefix: str = "S",
+) -> ElementSet:
+    r"""Build a Walker delta pattern T/P/F: planes spread over 360 degrees of RAAN.
+
+    Plane j has RAAN ``raan0 + 2 pi j / P``.
 
     Parameters
     ----------
@@ -269,7 +284,7 @@ _WALKER_DOC = """
     Walker's T/P/F notation [1]_: with ``S = T/P`` satellites per plane, satellite
     ``k`` of plane ``j`` has
 
-    .. math:: u_{jk} = u_0 + \\frac{2\\pi k}{S} + \\frac{2\\pi F j}{T}
+    .. math:: u_{jk} = u_0 + \frac{2\pi k}{S} + \frac{2\pi F j}{T}
 
     where ``u = argp + M`` is the along-track angle from the node. For circular orbits
     this is the argument of latitude. For an eccentric template the spacing is applied
@@ -281,21 +296,6 @@ _WALKER_DOC = """
     .. [1] J. G. Walker, "Satellite constellations", Journal of the British
        Interplanetary Society, vol. 37, pp. 559-572, 1984.
     """
-
-
-def walker_delta(
-    total: int,
-    planes: int,
-    phasing: int,
-    *,
-    a_km: float,
-    e: float = 0.0,
-    i_rad: float,
-    raan0_rad: float = 0.0,
-    argp_rad: float = 0.0,
-    M0_rad: float = 0.0,
-    id_prefix: str = "S",
-) -> ElementSet:
     return _walker(
         TWO_PI,
         total,
@@ -311,12 +311,6 @@ def walker_delta(
     )
 
 
-walker_delta.__doc__ = (
-    "Build a Walker delta pattern T/P/F: planes spread over 360 degrees of RAAN.\n\n"
-    "    Plane j has RAAN ``raan0 + 2 pi j / P``." + _WALKER_DOC
-)
-
-
 def walker_star(
     total: int,
     planes: int,
@@ -330,6 +324,57 @@ def walker_star(
     M0_rad: float = 0.0,
     id_prefix: str = "S",
 ) -> ElementSet:
+    r"""Build a Walker star pattern T/P/F: planes spread over 180 degrees of RAAN.
+
+    Plane j has RAAN ``raan0 + pi j / P`` (near-polar planes whose ascending and
+    descending halves together cover all longitudes).
+
+    Parameters
+    ----------
+    total : int
+        Number of satellites T.
+    planes : int
+        Number of orbit planes P; must divide T.
+    phasing : int
+        Phasing factor F, ``0 <= F < P``.
+    a_km : float
+        Semi-major axis of every satellite [km].
+    e : float, optional
+        Eccentricity of every satellite [unitless].
+    i_rad : float
+        Inclination [rad].
+    raan0_rad : float, optional
+        Right ascension of the ascending node of plane 0 [rad].
+    argp_rad : float, optional
+        Argument of perigee of every satellite [rad].
+    M0_rad : float, optional
+        Mean anomaly of slot 0 in plane 0 [rad].
+    id_prefix : str, optional
+        Prefix of the ids ``"<prefix>-P<plane>-<slot>"``, both counted from 1 and
+        zero-padded to at least two digits (``"S-P01-03"``).
+
+    Returns
+    -------
+    ElementSet
+        T satellites ordered plane by plane, slot by slot.
+
+    Notes
+    -----
+    Walker's T/P/F notation [1]_: with ``S = T/P`` satellites per plane, satellite
+    ``k`` of plane ``j`` has
+
+    .. math:: u_{jk} = u_0 + \frac{2\pi k}{S} + \frac{2\pi F j}{T}
+
+    where ``u = argp + M`` is the along-track angle from the node. For circular orbits
+    this is the argument of latitude. For an eccentric template the spacing is applied
+    to the mean anomaly (``M = M0 + 2 pi k / S + 2 pi F j / T`` with the common
+    ``argp``), which keeps the satellites evenly spaced in time.
+
+    References
+    ----------
+    .. [1] J. G. Walker, "Satellite constellations", Journal of the British
+       Interplanetary Society, vol. 37, pp. 559-572, 1984.
+    """
     return _walker(
         np.pi,
         total,
@@ -344,12 +389,6 @@ def walker_star(
         id_prefix=id_prefix,
     )
 
-
-walker_star.__doc__ = (
-    "Build a Walker star pattern T/P/F: planes spread over 180 degrees of RAAN.\n\n"
-    "    Plane j has RAAN ``raan0 + pi j / P`` (near-polar planes whose ascending and\n"
-    "    descending halves together cover all longitudes)." + _WALKER_DOC
-)
 
 WALKER_PATTERNS = {"delta": walker_delta, "star": walker_star}
 
