@@ -266,7 +266,7 @@ def repeat_ground_track_a(k_revs: int, d_days: int, i_rad: float, e: float = 0.0
 
     def mismatch(a: float) -> float:
         raan_dot, argp_dot, m_dot = secular_rates(a, ecc, inc)
-        return k_revs * (OMEGA_EARTH_RAD_S - raan_dot) - d_days * (m_dot + argp_dot)
+        return float(k_revs * (OMEGA_EARTH_RAD_S - raan_dot) - d_days * (m_dot + argp_dot))
 
     n0 = k_revs * OMEGA_EARTH_RAD_S / d_days
     a0 = (MU_EARTH_KM3_S2 / n0**2) ** (1.0 / 3.0)

@@ -28,7 +28,7 @@ from covergrid.errors import CovergridError, ElementError
 try:  # numba is a declared dependency; the NumPy path keeps working without it.
     import numba as _numba
 except ImportError:  # pragma: no cover - exercised only in broken installs
-    _numba = None
+    _numba = None  # type: ignore[assignment]
 
 __all__ = [
     "secular_rates",
