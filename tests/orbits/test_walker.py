@@ -173,6 +173,10 @@ def test_elementset_coerces_and_freezes():
     assert s.ids == ("a", "b", "c") and len(s) == 3
     with pytest.raises(AttributeError):
         s.a_km = np.zeros(3)  # type: ignore[misc]
+    # equality and hashing by value, so a set can key a cache
+    assert s == _three() and hash(s) == hash(_three())
+    assert s != s.subset([0, 1]) and s != "not a set"
+    assert len({s, _three()}) == 1
 
 
 def test_elementset_length_and_id_errors():

@@ -119,6 +119,18 @@ class ElementSet:
         """Return the number of satellites."""
         return len(self.ids)
 
+    def __eq__(self, other: object) -> bool:
+        """Compare ids and element values (the generated dataclass ``==`` fails on arrays)."""
+        if not isinstance(other, ElementSet):
+            return NotImplemented
+        return self.ids == other.ids and all(
+            np.array_equal(getattr(self, f), getattr(other, f)) for f in _ELEMENT_FIELDS
+        )
+
+    def __hash__(self) -> int:
+        """Hash of ids and element bytes (the arrays are read-only), so sets can be cache keys."""
+        return hash((self.ids, *(getattr(self, f).tobytes() for f in _ELEMENT_FIELDS)))
+
     @staticmethod
     def concat(sets: Sequence[ElementSet]) -> ElementSet:
         """Join several sets (shells, groups) into one constellation.
