@@ -219,6 +219,7 @@ def _cmd_elements(args: argparse.Namespace) -> int:
         kepler_to_cartesian,
         mean_to_true,
         true_to_mean,
+        validate_state,
     )
 
     mu = MU_EARTH_KM3_S2 if args.mu_km3_s2 is None else args.mu_km3_s2
@@ -238,6 +239,11 @@ def _cmd_elements(args: argparse.Namespace) -> int:
         v = np.array(args.velocity_km_s)
         if not (np.all(np.isfinite(r)) and np.all(np.isfinite(v))):
             return _fail("--position-km/--velocity-km-s: must be finite numbers")
+        try:  # zero or parallel vectors: a clear error naming the option
+            validate_state(r, v)
+        except CovergridError as exc:
+            return _fail(str(exc).replace("position_km", "--position-km")
+                         .replace("velocity_km_s", "--velocity-km-s"))
         k = cartesian_to_kepler(r, v, mu)
         a = float(k.a_km)
         e = float(k.e)
@@ -276,9 +282,8 @@ def _cmd_elements(args: argparse.Namespace) -> int:
         return _fail("--nu-deg: give exactly one of --nu-deg or --mean-anomaly-deg")
     if not (math.isfinite(e) and 0.0 <= e < 1.0):
         return _fail(f"--e: must be in [0, 1) for a closed orbit; got {e!r}")
-    if not (math.isfinite(a) and a * (1 - e) > WGS84_A_KM):
-        return _fail(f"--a-km: the perigee radius a(1-e) = {a * (1 - e):.3f} km must exceed "
-                     f"{WGS84_A_KM} km; got a = {a!r}")
+    if not (math.isfinite(a) and a > 0):
+        return _fail(f"--a-km: must be a positive length; got {a!r}")
     if not 0.0 <= args.i_deg <= 180.0:
         return _fail(f"--i-deg: must be in [0, 180]; got {args.i_deg!r}")
     nu = (args.nu_deg * DEG if args.nu_deg is not None
@@ -294,6 +299,7 @@ def _cmd_elements(args: argparse.Namespace) -> int:
         ("|v|", f"{np.linalg.norm(v):.9f}", "km/s"),
         ("true anomaly nu", f"{nu / DEG:.6f}", "deg"),
         ("period", f"{2 * math.pi * math.sqrt(a**3 / mu):.3f}", "s"),
+        ("perigee altitude", f"{a * (1 - e) - WGS84_A_KM:.3f}", "km"),
     ]
     print(_table(rows))
     return EXIT_OK

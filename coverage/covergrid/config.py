@@ -44,7 +44,6 @@ __all__ = [
 SECONDS_PER_HOUR = 3600.0
 # The schedulers a study may name besides a "tcp://host:port" or "tls://host:port" address.
 SCHEDULERS = ("threads", "synchronous", "processes", "local-cluster")
-PROJECTIONS = ("robinson", "plate_carree", "mollweide", "orthographic")
 DEFAULT_MAP_METRICS = ("coverage_fraction", "max_gap", "mean_response_time", "mean_in_view")
 _ADDRESS_RE = re.compile(r"^(tcp|tls)://[A-Za-z0-9_.\-\[\]:]+:[0-9]{1,5}$")
 _NAME_RE = re.compile(r"^[A-Za-z0-9_.\-]+$")
@@ -362,7 +361,9 @@ class MapsSpec(_Model):
 
     metrics: list[str] = Field(default_factory=lambda: list(DEFAULT_MAP_METRICS),
                                description="Metrics to map.")
-    projection: Literal["robinson", "plate_carree", "mollweide", "orthographic"] = "robinson"
+    projection: Literal["robinson", "plate_carree", "mollweide", "equal_earth", "orthographic",
+                        "polar_north", "polar_south"] = Field(
+        "robinson", description="Map projection of the metric maps.")
 
     @field_validator("metrics")
     @classmethod

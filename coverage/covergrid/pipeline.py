@@ -301,11 +301,56 @@ def write_outputs(study: Study, ds, out_root: str | Path, *, maps: bool = True,
     return folder, files, summary
 
 
-def _write_figures(study: Study, ds, folder: Path) -> list[Path]:
-    """Metric maps, ground tracks and latitude profile via :mod:`covergrid.render`."""
-    from covergrid.render import figures_for_study
+def design_caption_for(study: Study) -> str:
+    """Caption of every figure: the design (first group), sensor limits, span and step."""
+    from covergrid.render import design_caption
 
-    return list(figures_for_study(study, ds, folder))
+    info: dict[str, Any] = {
+        "min_elevation_deg": study.sensor.min_elevation_deg,
+        "max_off_nadir_deg": study.sensor.max_off_nadir_deg,
+        "max_range_km": study.sensor.max_range_km,
+        "duration_h": study.duration_h, "step_s": study.step_s, "epoch": study.epoch,
+    }
+    walkers = [g for g in study.constellation if g.walker is not None]
+    if len(study.constellation) == 1 and walkers:
+        w, t = walkers[0].walker, walkers[0].template
+        info.update(pattern=w.pattern, total=w.total, planes=w.planes, phasing=w.phasing,
+                    altitude_km=t.a_km - WGS84_A_KM, inclination_deg=t.inclination_deg)
+    text = design_caption(info)
+    if not (len(study.constellation) == 1 and walkers):
+        text = f"{study.n_satellites} satellites in {len(study.constellation)} group(s). " + text
+    return text
+
+
+#: Samples of the ground-track figure (over one orbit of the slowest satellite, at most the span).
+_TRACK_SAMPLES = 721
+
+
+def _write_figures(study: Study, ds, folder: Path) -> list[Path]:
+    """Metric maps, ground tracks and the latitude profile (see :mod:`covergrid.render`)."""
+    import numpy as np
+
+    from covergrid.render import (
+        ground_track,
+        plane_numbers,
+        save_ground_tracks,
+        save_latitude_profile,
+        save_metric_maps,
+    )
+
+    caption = design_caption_for(study)
+    files = save_metric_maps(ds, study.maps.metrics, folder, caption=caption,
+                             projection=study.maps.projection)
+    elements = study.to_elements()
+    period_s = float(np.max(2 * math.pi * np.sqrt(np.asarray(elements.a_km) ** 3
+                                                   / MU_EARTH_KM3_S2)))
+    t_s = np.linspace(0.0, min(period_s, study.duration_s), _TRACK_SAMPLES)
+    lat, lon = ground_track(elements, study.epoch_datetime64(), t_s)
+    files += save_ground_tracks(lat, lon, folder, caption=caption, ids=elements.ids,
+                                planes=plane_numbers(elements))
+    profile = [m for m in study.maps.metrics if m != "nfold_fraction"][:4] or ["coverage_fraction"]
+    files += save_latitude_profile(ds, profile, folder, caption=caption)
+    return files
 
 
 def _attrs(study: Study) -> dict[str, Any]:
