@@ -15,6 +15,7 @@ import xarray as xr
 from covergrid import __version__, cli
 from covergrid.config import export_schema, load_study
 from covergrid.metrics import METRICS
+from test_io import compliance_report
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -181,6 +182,20 @@ def test_run_end_to_end_writes_every_output(tmp_path, capsys):
     # The resolved study is itself a valid study that describes the same run.
     assert load_study(folder / "study.resolved.yaml") == load_study(study)
     assert not any(p.name.endswith(".tmp") for p in folder.iterdir())
+    report = compliance_report(folder / "coverage.nc")
+    assert report["high_count"] == 0, report["high_priorities"]
+
+
+def test_local_cluster_gives_the_same_data(tmp_path):
+    pytest.importorskip("distributed")
+    study = _write(tmp_path, TINY + "compute: {scheduler: local-cluster, workers: 1, "
+                   "threads_per_worker: 1}\n")
+    ds_cluster = load_study(study)
+    import covergrid
+
+    a = covergrid.run(ds_cluster)
+    b = covergrid.run(ds_cluster, scheduler="threads")
+    xr.testing.assert_identical(a.drop_attrs(), b.drop_attrs())
 
 
 def test_run_status_1_when_the_requirement_is_not_met(tmp_path, capsys):
