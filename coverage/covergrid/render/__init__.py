@@ -1,4 +1,4 @@
-"""Report-ready figures: metric maps, ground tracks, latitude profiles (matplotlib + cartopy).
+"""Report-ready figures: metric maps, ground tracks, latitude profiles, trade charts.
 
 Importing this package is light: matplotlib and cartopy are imported only when a figure is drawn.
 Coastlines come from Natural Earth data bundled in ``render/data`` (see its ATTRIBUTION.md);
@@ -27,6 +27,13 @@ from covergrid.render.tracks import (
     save_ground_tracks,
     split_at_antimeridian,
 )
+from covergrid.render.trades import (
+    pareto_front,
+    plot_metric_vs_total,
+    plot_minimum_total_map,
+    plot_pareto_front,
+    save_trade_figures,
+)
 
 __all__ = [
     "FOOTER",
@@ -35,12 +42,17 @@ __all__ = [
     "get_projection",
     "ground_track",
     "latitude_profile",
+    "pareto_front",
     "plane_numbers",
     "plot_ground_tracks",
     "plot_latitude_profile",
     "plot_metric_map",
+    "plot_metric_vs_total",
+    "plot_minimum_total_map",
+    "plot_pareto_front",
     "save_ground_tracks",
     "save_latitude_profile",
     "save_metric_maps",
+    "save_trade_figures",
     "split_at_antimeridian",
 ]

@@ -47,6 +47,7 @@ __all__ = [
     "fold_text",
     "is_lower_better",
     "line_colour",
+    "luminance",
     "metric_kind",
     "metric_label",
     "report_style",
@@ -172,6 +173,29 @@ def line_colour(name: str, units: str | None):
     import matplotlib as mpl
 
     return mpl.colormaps[_FAMILY_CMAP[metric_kind(name, units)]](0.3)
+
+
+def luminance(rgba) -> float:
+    """Relative luminance of an sRGB colour, 0 (black) to 1 (white).
+
+    Parameters
+    ----------
+    rgba : sequence of float
+        Colour, channels in [0, 1] (alpha ignored).
+
+    Returns
+    -------
+    float
+        Relative luminance [unitless].
+
+    Notes
+    -----
+    sRGB channels are linearised per IEC 61966-2-1 and weighted with the ITU-R BT.709
+    coefficients 0.2126, 0.7152, 0.0722.
+    """
+    rgb = np.asarray(rgba[:3], dtype=float)
+    lin = np.where(rgb <= 0.04045, rgb / 12.92, ((rgb + 0.055) / 1.055) ** 2.4)
+    return float(lin @ np.array([0.2126, 0.7152, 0.0722]))
 
 
 @dataclass(frozen=True)
