@@ -50,7 +50,7 @@ __all__ = [
 ]
 
 # Tolerances of the special cases in cartesian_to_kepler. Vallado's RV2COE uses 1e-8 for
-# both (from memory). We use 1e-11: folding a circular orbit (argp -> 0, nu -> argument of
+# both (as does its port in the sgp4 package, sgp4.ext.rv2coe). We use 1e-11: folding a circular orbit (argp -> 0, nu -> argument of
 # latitude) keeps the direction of r but moves its length by up to 2 a e, which for
 # e < 1e-11 and a < 50,000 km is below one millimetre; 1e-11 is still four orders of
 # magnitude above the rounding noise of e computed from r and v (~1e-15).
@@ -516,7 +516,7 @@ def true_to_mean(nu_rad: ArrayLike, e: ArrayLike) -> np.ndarray:
     Notes
     -----
     Barker's equation (Vallado, Fundamentals of Astrodynamics and Applications, 5th ed.,
-    sec. 2.2.4; convention from memory):
+    sec. 2.2.4; the same convention as the NEWTONNU port in sgp4.ext, checked in the tests):
 
     .. math:: M_p = B + \frac{B^3}{3}, \qquad B = \tan\frac{\nu}{2}
     """
