@@ -117,7 +117,7 @@ def band_edges(n_lat: int, chunk_rows: int | None, n_sat: int = 1) -> list[tuple
 
 def _band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
                grid_spec: GridSpec, rows: tuple[int, int], sensor: SensorSpec,
-               nfold_max: int) -> dict[str, np.ndarray]:
+               nfold_max: int) -> np.ndarray:
     """Metrics of the cells of rows [r0, r1): propagate block by block, stream through the kernel."""
     grid = Grid(grid_spec)
     r0, r1 = rows
@@ -138,11 +138,20 @@ def _band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
         pos = j2.propagate_to_ecef(elements, t, theta0_rad, out=out)
         kernel.run_band(state, pos, i0, geo, lon0, dlon, n_lon, el_min, eta_max, range_max)
     kernel.close_band(state, n_steps)
-    res = finalise(state, n_steps, step_s)
-    res = {k: (v.reshape(-1, n_rows, n_lon) if k == "nfold_fraction"
-               else v.reshape(n_rows, n_lon)) for k, v in res.items()}
-    res["visits"] = state["visits"].copy()
-    return res
+    res = finalise(kernel.accumulators(state), n_steps, step_s)
+    # one float64 stack per band: (metrics except nfold, rows, lon) + nfold (K, rows, lon) +
+    # the visit count, so that the graph has one task per band and no per-metric getitems
+    planes = [res[m].reshape(n_rows, n_lon) for m in _PLANAR]
+    out = np.empty((len(_PLANAR) + nfold_max + 1, n_rows, n_lon))
+    out[: len(_PLANAR)] = planes
+    out[len(_PLANAR): -1] = res["nfold_fraction"].reshape(nfold_max, n_rows, n_lon)
+    out[-1] = 0.0
+    out[-1, 0, 0] = float(state["visits"][0])
+    return out
+
+
+#: Metrics on (lat, lon), in the order of a band task's output stack.
+_PLANAR = [m for m in METRICS if m != "nfold_fraction"]
 
 
 def _grid_dataset(grid: Grid) -> xr.Dataset:
@@ -232,19 +241,18 @@ def compute_coverage(
     bands = band_edges(grid.n_lat, chunk_rows, n_sat)
     n_lon = grid.n_lon
 
-    tasks = [dask.delayed(_band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid,
-                                                  b, sensor, int(nfold_max)) for b in bands]
+    depth = len(_PLANAR) + nfold_max + 1
+    stacks = [da.from_delayed(
+        dask.delayed(_band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid, b,
+                                            sensor, int(nfold_max)),
+        shape=(depth, b[1] - b[0], n_lon), dtype=np.float64) for b in bands]
+    stack = da.concatenate(stacks, axis=1)
     data: dict[str, Any] = {}
-    for name in METRICS:
-        dtype = np.int32 if name in INTEGER_METRICS else np.float64
-        parts = []
-        for b, t in zip(bands, tasks):
-            shape = ((nfold_max, b[1] - b[0], n_lon) if name == "nfold_fraction"
-                     else (b[1] - b[0], n_lon))
-            parts.append(da.from_delayed(t[name], shape=shape, dtype=dtype))
-        data[name] = da.concatenate(parts, axis=-2)
-    visits = da.concatenate([da.from_delayed(t["visits"], shape=(1,), dtype=np.int64)
-                             for t in tasks]).sum()
+    for idx, name in enumerate(_PLANAR):
+        arr = stack[idx]
+        data[name] = arr.astype(np.int32) if name in INTEGER_METRICS else arr
+    data["nfold_fraction"] = stack[len(_PLANAR): len(_PLANAR) + nfold_max]
+    visits = stack[-1].sum().astype(np.int64)
 
     ds = _grid_dataset(g)
     ds = ds.assign_coords(k=xr.Variable("k", np.arange(1, nfold_max + 1, dtype=np.int32), {

@@ -43,6 +43,16 @@ _BOUND_MARGIN_RAD = 1e-6
 _BIG = np.int32(2**30)
 
 
+# columns of the per-cell accumulator array (one row of int64 per cell, fields together in
+# memory so that touching a cell is one or two cache lines)
+N_CUR, T_LAST, GAP_START, SUM_N, MIN_N, MAX_N, GAP_COUNT, SUM_GAP, SUM_GAP2, MAX_GAP, \
+    PASS_COUNT = range(11)
+_N_FIELDS = 11
+_FIELDS = {"sum_n": SUM_N, "min_n": MIN_N, "max_n": MAX_N, "gap_count": GAP_COUNT,
+           "sum_gap": SUM_GAP, "sum_gap2": SUM_GAP2, "max_gap": MAX_GAP,
+           "pass_count": PASS_COUNT}
+
+
 def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str, np.ndarray]:
     """Allocate the streaming state of one latitude band.
 
@@ -60,23 +70,15 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
     Returns
     -------
     dict of ndarray
-        Accumulators (see :func:`covergrid.metrics.finalise`) plus the kernel's own
-        bookkeeping (``n_cur``, ``t_last``, ``gap_start``, previous intervals).
+        ``acc`` (n_cells, 11) int64 per-cell accumulators (columns ``N_CUR`` ...
+        ``PASS_COUNT`` of this module), ``hist`` (n_cells, K+1) samples spent at each level,
+        the previous and current interval of every satellite in every row, and ``visits``.
     """
+    acc = np.zeros((n_cells, _N_FIELDS), np.int64)
+    acc[:, MIN_N] = 2**40
     return {
-        "n_cur": np.zeros(n_cells, np.int32),
-        "t_last": np.zeros(n_cells, np.int32),
-        "gap_start": np.zeros(n_cells, np.int32),
+        "acc": acc,
         "hist": np.zeros((n_cells, nfold_max + 1), np.int64),
-        "sum_n": np.zeros(n_cells, np.int64),
-        "min_n": np.full(n_cells, _BIG, np.int32),
-        "max_n": np.zeros(n_cells, np.int32),
-        "gap_count": np.zeros(n_cells, np.int32),
-        "sum_gap": np.zeros(n_cells, np.int64),
-        "sum_gap2": np.zeros(n_cells, np.int64),
-        "max_gap": np.zeros(n_cells, np.int64),
-        "pass_count": np.zeros(n_cells, np.int32),
-        # previous step's interval per satellite and row, and the row range it spans
         "prev_start": np.zeros((n_sat, n_rows), np.int32),
         "prev_len": np.zeros((n_sat, n_rows), np.int32),
         "prev_rows": np.zeros((n_sat, 2), np.int32),
@@ -87,6 +89,14 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
     }
 
 
+def accumulators(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """The closed-out accumulators by name, as :func:`covergrid.metrics.finalise` takes them."""
+    acc = state["acc"]
+    out = {name: acc[:, col] for name, col in _FIELDS.items()}
+    out["hist"] = state["hist"]
+    return out
+
+
 @numba.njit(cache=True, nogil=True)
 def _central_angle_bound(r_km, el_min_rad, eta_max_rad, range_max_km):
     """Conservative geocentric central angle of the footprint of a satellite at radius r.
@@ -95,7 +105,8 @@ def _central_angle_bound(r_km, el_min_rad, eta_max_rad, range_max_km):
     3rd ed., sec. 5.2: sin(eta) = cos(eps) R / r, lambda = 90 deg - eta - eps) evaluated with
     the polar radius (the smallest Earth radius gives the widest footprint) and the minimum
     elevation lowered by the largest deflection between ellipsoid normal and geocentric
-    radius, so that no visible cell lies outside it on the ellipsoid.
+    radius, so that no visible cell lies outside it on the ellipsoid. Returns -1 when nothing
+    can be in view.
     """
     rb = WGS84_B_KM
     if r_km <= rb:
@@ -112,43 +123,37 @@ def _central_angle_bound(r_km, el_min_rad, eta_max_rad, range_max_km):
             if lam_on < lam:
                 lam = lam_on
     if range_max_km > 0.0:
-        # cos(lambda) >= (rho^2 + r^2 - D^2) / (2 rho r); the bound is the smallest right-hand
-        # side over rho in [b, a] (law of cosines; its minimum is at rho = sqrt(r^2 - D^2)).
+        # cos(lambda) >= (rho^2 + r^2 - D^2) / (2 rho r) (law of cosines); the bound takes
+        # the smallest right-hand side over rho in [b, a] (stationary at sqrt(r^2 - D^2))
         d2 = range_max_km * range_max_km
         best = 2.0
         for rho in (WGS84_B_KM, WGS84_A_KM, math.sqrt(max(r_km * r_km - d2, 0.0))):
-            if rho < WGS84_B_KM:
-                rho = WGS84_B_KM
-            if rho > WGS84_A_KM:
-                rho = WGS84_A_KM
+            rho = min(max(rho, WGS84_B_KM), WGS84_A_KM)
             v = (rho * rho + r_km * r_km - d2) / (2.0 * rho * r_km)
             if v < best:
                 best = v
-        if best < 1.0:
-            lam_r = math.acos(max(best, -1.0))
-            if lam_r < lam:
-                lam = lam_r
-        else:
+        if best >= 1.0:
             return -1.0
+        lam_r = math.acos(max(best, -1.0))
+        if lam_r < lam:
+            lam = lam_r
     return lam + _BOUND_MARGIN_RAD
 
 
-@numba.njit(cache=True, nogil=True)
-def _visible(sx, sy, sz, rs2, r, j, rho, zr, sin_lat, cos_lat, cos_lon, sin_lon,
-             sin2_el, cos2_eta, range2):
-    """Exact visibility of cell (row r, column j) from a satellite at (sx, sy, sz) [km].
+@numba.njit(cache=True, nogil=True, inline="always")
+def _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cl, sl, sin2_el, cos2_eta, range2):
+    """Exact visibility of one cell from a satellite at (sx, sy, sz) [km] (scalars only).
 
-    Elevation above the ellipsoid-normal horizon >= eps_min (sin2_el = sin^2 eps_min,
-    eps_min >= 0), off-nadir angle from the geocentric nadir <= eta_max (cos2_eta =
-    cos^2 eta_max, or a negative number when unlimited), slant range <= D_max (range2 = D^2,
-    or a negative number when unlimited).
+    The cell centre is (rho cl, rho sl, zc) on the ellipsoid with normal
+    (cos_lat cl, cos_lat sl, sin_lat). Limits: elevation above the ellipsoid-normal horizon
+    >= eps_min (sin2_el = sin^2 eps_min, eps_min >= 0); off-nadir angle from the geocentric
+    nadir <= eta_max (cos2_eta = cos^2 eta_max, negative when unlimited); slant range
+    <= D_max (range2 = D^2, negative when unlimited).
     """
-    cl = cos_lon[j]
-    sl = sin_lon[j]
-    dx = sx - rho[r] * cl
-    dy = sy - rho[r] * sl
-    dz = sz - zr[r]
-    up = cos_lat[r] * (dx * cl + dy * sl) + sin_lat[r] * dz
+    dx = sx - rho * cl
+    dy = sy - rho * sl
+    dz = sz - zc
+    up = cos_lat * (dx * cl + dy * sl) + sin_lat * dz
     if up < 0.0:
         return False
     d2 = dx * dx + dy * dy + dz * dz
@@ -163,8 +168,8 @@ def _visible(sx, sy, sz, rs2, r, j, rho, zr, sin_lat, cos_lat, cos_lon, sin_lon,
     return True
 
 
-@numba.njit(cache=True, nogil=True)
-def _extent(step, m, cap, jc, sx, sy, sz, rs2, r, rho, zr, sin_lat, cos_lat, cos_lon, sin_lon,
+@numba.njit(cache=True, nogil=True, inline="always")
+def _extent(step, m, cap, jc, sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon, sin_lon,
             n_lon, sin2_el, cos2_eta, range2):
     """Largest m in [0, cap] with column jc + step*m visible, searched from the estimate m.
 
@@ -174,54 +179,59 @@ def _extent(step, m, cap, jc, sx, sy, sz, rs2, r, rho, zr, sin_lat, cos_lat, cos
         m = 0
     if m > cap:
         m = cap
-    if _visible(sx, sy, sz, rs2, r, (jc + step * m) % n_lon, rho, zr, sin_lat, cos_lat,
-                cos_lon, sin_lon, sin2_el, cos2_eta, range2):
-        while m < cap and _visible(sx, sy, sz, rs2, r, (jc + step * (m + 1)) % n_lon, rho, zr,
-                                   sin_lat, cos_lat, cos_lon, sin_lon, sin2_el, cos2_eta,
-                                   range2):
+    j = (jc + step * m) % n_lon
+    if _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j], sin2_el,
+                cos2_eta, range2):
+        while m < cap:
+            j = (jc + step * (m + 1)) % n_lon
+            if not _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
+                            sin2_el, cos2_eta, range2):
+                break
             m += 1
         return m
     m -= 1
-    while m > 0 and not _visible(sx, sy, sz, rs2, r, (jc + step * m) % n_lon, rho, zr, sin_lat,
-                                 cos_lat, cos_lon, sin_lon, sin2_el, cos2_eta, range2):
+    while m > 0:
+        j = (jc + step * m) % n_lon
+        if _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j], sin2_el,
+                    cos2_eta, range2):
+            break
         m -= 1
     return m
 
 
-@numba.njit(cache=True, nogil=True)
-def _row_interval(sx, sy, sz, rs2, lon_s, sin_psi_s, cos_psi_s, cos_lam, r,
-                  rho, zr, sin_lat, cos_lat, sin_psi, cos_psi, cos_lon, sin_lon,
-                  lon0, dlon, n_lon, sin2_el, cos2_eta, range2):
-    """Visible columns of row r as (start, length), wrapping modulo n_lon; length 0: none."""
+@numba.njit(cache=True, nogil=True, inline="always")
+def _row_interval(sx, sy, sz, rs2, lon_s, sin_psi_s, cos_psi_s, cos_lam, rho, zc, sin_lat,
+                  cos_lat, sin_psi, cos_psi, cos_lon, sin_lon, lon0, dlon, n_lon, sin2_el,
+                  cos2_eta, range2):
+    """Visible columns of one row as (start, length), wrapping modulo n_lon; length 0: none."""
     jc = int(math.floor((lon_s - lon0) / dlon)) % n_lon
-    if not _visible(sx, sy, sz, rs2, r, jc, rho, zr, sin_lat, cos_lat, cos_lon, sin_lon,
+    if not _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[jc], sin_lon[jc],
                     sin2_el, cos2_eta, range2):
         return 0, 0
     # spherical estimate of the half-width (law of cosines on the sphere)
-    den = cos_psi[r] * cos_psi_s
-    if den > 1e-12:
-        cw = (cos_lam - sin_psi[r] * sin_psi_s) / den
-    else:
-        cw = -2.0
+    den = cos_psi * cos_psi_s
+    cw = (cos_lam - sin_psi * sin_psi_s) / den if den > 1e-12 else -2.0
     w = math.pi if cw <= -1.0 else math.acos(min(cw, 1.0))
-    off = lon0 + (jc + 0.5) * dlon - lon_s  # centre of jc relative to the satellite, |off| <= dlon/2
+    off = lon0 + (jc + 0.5) * dlon - lon_s  # centre of jc relative to the satellite
     cap = (n_lon - 1) // 2
-    m_r = int(math.floor((w - off) / dlon))
-    m_l = int(math.floor((w + off) / dlon))
-    m_r = _extent(1, m_r, cap, jc, sx, sy, sz, rs2, r, rho, zr, sin_lat, cos_lat, cos_lon,
-                  sin_lon, n_lon, sin2_el, cos2_eta, range2)
-    m_l = _extent(-1, m_l, cap, jc, sx, sy, sz, rs2, r, rho, zr, sin_lat, cos_lat, cos_lon,
-                  sin_lon, n_lon, sin2_el, cos2_eta, range2)
+    m_r = _extent(1, int(math.floor((w - off) / dlon)), cap, jc, sx, sy, sz, rs2, rho, zc,
+                  sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2)
+    m_l = _extent(-1, int(math.floor((w + off) / dlon)), cap, jc, sx, sy, sz, rs2, rho, zc,
+                  sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2)
     if m_r == cap or m_l == cap:
-        # the footprint reaches round the row: the few cells left near the far side are
-        # tested one by one
-        while m_r + m_l + 1 < n_lon and _visible(sx, sy, sz, rs2, r, (jc + m_r + 1) % n_lon,
-                                                 rho, zr, sin_lat, cos_lat, cos_lon, sin_lon,
-                                                 sin2_el, cos2_eta, range2):
+        # the footprint reaches round the row: the cells left near the far side are tested
+        # one by one
+        while m_r + m_l + 1 < n_lon:
+            j = (jc + m_r + 1) % n_lon
+            if not _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
+                            sin2_el, cos2_eta, range2):
+                break
             m_r += 1
-        while m_r + m_l + 1 < n_lon and _visible(sx, sy, sz, rs2, r, (jc - m_l - 1) % n_lon,
-                                                 rho, zr, sin_lat, cos_lat, cos_lon, sin_lon,
-                                                 sin2_el, cos2_eta, range2):
+        while m_r + m_l + 1 < n_lon:
+            j = (jc - m_l - 1) % n_lon
+            if not _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
+                            sin2_el, cos2_eta, range2):
+                break
             m_l += 1
     length = m_r + m_l + 1
     if length >= n_lon:
@@ -229,84 +239,80 @@ def _row_interval(sx, sy, sz, rs2, lon_s, sin_psi_s, cos_psi_s, cos_lam, r,
     return (jc - m_l) % n_lon, length
 
 
-@numba.njit(cache=True, nogil=True)
-def _change(c, i, delta, n_cur, t_last, gap_start, hist, sum_n, min_n, max_n,
-            gap_count, sum_gap, sum_gap2, max_gap, pass_count, kmax):
-    """Apply a +1 / -1 change of cell c's in-view count at sample i."""
-    n_old = n_cur[c]
-    dur = i - t_last[c]
+@numba.njit(cache=True, nogil=True, inline="always")
+def _close_level(a, h, c, i, kmax):
+    """Record the level cell c has held since its last change, up to sample i."""
+    dur = i - a[c, T_LAST]
     if dur > 0:
-        lvl = n_old if n_old < kmax else kmax
-        hist[c, lvl] += dur
-        sum_n[c] += n_old * dur
-        if n_old < min_n[c]:
-            min_n[c] = n_old
-        if n_old > max_n[c]:
-            max_n[c] = n_old
-        t_last[c] = i
-    n_cur[c] = n_old + delta
-    if delta > 0:
-        pass_count[c] += 1
-        if n_old == 0:
-            g = i - gap_start[c]
-            if g > 0:
-                gap_count[c] += 1
-                sum_gap[c] += g
-                sum_gap2[c] += g * g
-                if g > max_gap[c]:
-                    max_gap[c] = g
-    elif n_old + delta == 0:
-        gap_start[c] = i
+        n_old = a[c, N_CUR]
+        h[c, n_old if n_old < kmax else kmax] += dur
+        a[c, SUM_N] += n_old * dur
+        if n_old < a[c, MIN_N]:
+            a[c, MIN_N] = n_old
+        if n_old > a[c, MAX_N]:
+            a[c, MAX_N] = n_old
+        a[c, T_LAST] = i
 
 
-@numba.njit(cache=True, nogil=True)
-def _apply_difference(base, sa, la, sb, lb, n_lon, i, delta, n_cur, t_last, gap_start, hist,
-                      sum_n, min_n, max_n, gap_count, sum_gap, sum_gap2, max_gap, pass_count,
-                      kmax):
+@numba.njit(cache=True, nogil=True, inline="always")
+def _close_gap(a, c, i):
+    """Record the gap of cell c that began at GAP_START and ends at sample i (if not empty)."""
+    g = i - a[c, GAP_START]
+    if g > 0:
+        a[c, GAP_COUNT] += 1
+        a[c, SUM_GAP] += g
+        a[c, SUM_GAP2] += g * g
+        if g > a[c, MAX_GAP]:
+            a[c, MAX_GAP] = g
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _change_range(a, h, base, j0, j1, n_lon, i, delta, kmax):
+    """Apply a +1 (a pass starts) or -1 change of the in-view count at sample i to the
+    columns j0 .. j1-1 (taken modulo n_lon) of the row starting at cell `base`."""
+    for jj in range(j0, j1):
+        c = base + jj % n_lon
+        _close_level(a, h, c, i, kmax)
+        n_old = a[c, N_CUR]
+        a[c, N_CUR] = n_old + delta
+        if delta > 0:
+            a[c, PASS_COUNT] += 1
+            if n_old == 0:
+                _close_gap(a, c, i)
+        elif n_old == 1:
+            a[c, GAP_START] = i
+    return max(j1 - j0, 0)
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _apply_difference(a, h, base, sa, la, sb, lb, n_lon, i, delta, kmax):
     """Apply `delta` to the cells of interval A that are not in interval B (one row)."""
     if la == 0:
         return 0
-    touched = 0
     if lb == 0:
-        for m in range(la):
-            _change(base + (sa + m) % n_lon, i, delta, n_cur, t_last, gap_start, hist, sum_n,
-                    min_n, max_n, gap_count, sum_gap, sum_gap2, max_gap, pass_count, kmax)
-        return la
+        return _change_range(a, h, base, sa, sa + la, n_lon, i, delta, kmax)
     if la + lb >= n_lon:
-        # long arcs may overlap in two pieces: test membership cell by cell (polar rows only)
+        # long arcs may overlap in two pieces: test membership cell by cell (polar rows)
+        touched = 0
         for m in range(la):
             j = (sa + m) % n_lon
             if (j - sb) % n_lon >= lb:
-                _change(base + j, i, delta, n_cur, t_last, gap_start, hist, sum_n, min_n,
-                        max_n, gap_count, sum_gap, sum_gap2, max_gap, pass_count, kmax)
-                touched += 1
+                touched += _change_range(a, h, base, j, j + 1, n_lon, i, delta, kmax)
         return touched
     # two arcs shorter than the circle together overlap in at most one piece; unwrap B to
     # the copy whose centre is nearest A's centre, then A \ B = [a0, b0) U [b1, a1)
-    a0 = sa
     a1 = sa + la
-    d2 = (2 * sb + lb) - (2 * sa + la)
-    k = int(math.floor(d2 / (2.0 * n_lon) + 0.5))
+    k = int(math.floor(((2 * sb + lb) - (2 * sa + la)) / (2.0 * n_lon) + 0.5))
     b0 = sb - k * n_lon
     b1 = b0 + lb
-    hi = a1 if a1 < b0 else b0
-    for j in range(a0, hi):
-        _change(base + j % n_lon, i, delta, n_cur, t_last, gap_start, hist, sum_n, min_n,
-                max_n, gap_count, sum_gap, sum_gap2, max_gap, pass_count, kmax)
-        touched += 1
-    lo = b1 if b1 > a0 else a0
-    for j in range(lo, a1):
-        _change(base + j % n_lon, i, delta, n_cur, t_last, gap_start, hist, sum_n, min_n,
-                max_n, gap_count, sum_gap, sum_gap2, max_gap, pass_count, kmax)
-        touched += 1
+    touched = _change_range(a, h, base, sa, min(a1, b0), n_lon, i, delta, kmax)
+    touched += _change_range(a, h, base, max(b1, sa), a1, n_lon, i, delta, kmax)
     return touched
 
 
 @numba.njit(cache=True, nogil=True)
 def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
-            el_min_rad, eta_max_rad, range_max_km,
-            n_cur, t_last, gap_start, hist, sum_n, min_n, max_n, gap_count, sum_gap,
-            sum_gap2, max_gap, pass_count, prev_start, prev_len, prev_rows,
+            el_min_rad, eta_max_rad, range_max_km, acc, hist, prev_start, prev_len, prev_rows,
             cur_start, cur_len, cur_rows, visits):
     """Advance one latitude band's streaming state over a block of samples.
 
@@ -322,10 +328,10 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
         Western edge of column 0 and column width [rad]; n_lon columns cover 360 deg.
     el_min_rad, eta_max_rad, range_max_km : float
         Sensor limits; eta_max_rad <= 0 and range_max_km <= 0 mean "no limit".
-    n_cur ... cur_rows : ndarray
+    acc, hist, prev_start ... cur_rows : ndarray
         State from :func:`new_state`, updated in place.
     visits : ndarray, (1,)
-        Running count of satellite-step-cell visibilities (for benchmarks), updated in place.
+        Running count of satellite-sample-cell visibilities (for benchmarks), in place.
     """
     n_sat = pos_km.shape[0]
     n_block = pos_km.shape[1]
@@ -355,32 +361,31 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
             sz = pos_km[s, b, 2]
             rs2 = sx * sx + sy * sy + sz * sz
             rs = math.sqrt(rs2)
-            lam = _central_angle_bound(rs, el_min_rad, eta_max_rad, range_max_km)
             cur_rows[s, 0] = 0
             cur_rows[s, 1] = 0
+            lam = _central_angle_bound(rs, el_min_rad, eta_max_rad, range_max_km)
             if lam < 0.0:
                 continue
-            psi_s = math.asin(sz / rs)
-            lo_psi = psi_s - lam
-            hi_psi = psi_s + lam
-            if hi_psi < psi_lo_band or lo_psi > psi_hi_band:
+            sps = sz / rs
+            psi_s = math.asin(sps)
+            if psi_s + lam < psi_lo_band or psi_s - lam > psi_hi_band:
                 continue
-            r_lo = np.searchsorted(psi, lo_psi)
-            r_hi = np.searchsorted(psi, hi_psi, side="right")
+            r_lo = np.searchsorted(psi, psi_s - lam)
+            r_hi = np.searchsorted(psi, psi_s + lam, side="right")
             cur_rows[s, 0] = r_lo
             cur_rows[s, 1] = r_hi
             lon_s = math.atan2(sy, sx)
-            sps = sz / rs
             cps = math.sqrt(max(1.0 - sps * sps, 0.0))
             cos_lam = math.cos(lam)
             for r in range(r_lo, r_hi):
-                st, ln = _row_interval(sx, sy, sz, rs2, lon_s, sps, cps, cos_lam, r, rho, zr,
-                                       sin_lat, cos_lat, sin_psi, cos_psi, cos_lon, sin_lon,
-                                       lon0, dlon, n_lon, sin2_el, cos2_eta, range2)
+                st, ln = _row_interval(sx, sy, sz, rs2, lon_s, sps, cps, cos_lam, rho[r], zr[r],
+                                       sin_lat[r], cos_lat[r], sin_psi[r], cos_psi[r], cos_lon,
+                                       sin_lon, lon0, dlon, n_lon, sin2_el, cos2_eta, range2)
                 cur_start[s, r] = st
                 cur_len[s, r] = ln
                 nvis += ln
-        # 2. entries of all satellites, then 3. exits of all satellites
+        # 2. entries of all satellites, then 3. exits of all satellites: a hand-over within
+        # one sample never passes through zero satellites in view
         for phase in range(2):
             delta = 1 if phase == 0 else -1
             for s in range(n_sat):
@@ -388,8 +393,6 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
                 p_hi = prev_rows[s, 1]
                 c_lo = cur_rows[s, 0]
                 c_hi = cur_rows[s, 1]
-                if p_lo >= p_hi and c_lo >= c_hi:
-                    continue
                 if p_lo >= p_hi:
                     lo, hi = c_lo, c_hi
                 elif c_lo >= c_hi:
@@ -397,58 +400,37 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
                 else:
                     lo, hi = min(p_lo, c_lo), max(p_hi, c_hi)
                 for r in range(lo, hi):
-                    cs = cur_start[s, r] if c_lo <= r < c_hi else 0
-                    cl = cur_len[s, r] if c_lo <= r < c_hi else 0
-                    ps = prev_start[s, r] if p_lo <= r < p_hi else 0
-                    pl = prev_len[s, r] if p_lo <= r < p_hi else 0
+                    in_c = c_lo <= r < c_hi
+                    in_p = p_lo <= r < p_hi
+                    cs = cur_start[s, r] if in_c else 0
+                    cl = cur_len[s, r] if in_c else 0
+                    ps = prev_start[s, r] if in_p else 0
+                    pl = prev_len[s, r] if in_p else 0
                     if phase == 0:
-                        _apply_difference(r * n_lon, cs, cl, ps, pl, n_lon, i, delta, n_cur,
-                                          t_last, gap_start, hist, sum_n, min_n, max_n,
-                                          gap_count, sum_gap, sum_gap2, max_gap, pass_count,
+                        _apply_difference(acc, hist, r * n_lon, cs, cl, ps, pl, n_lon, i, 1,
                                           kmax)
                     else:
-                        _apply_difference(r * n_lon, ps, pl, cs, cl, n_lon, i, delta, n_cur,
-                                          t_last, gap_start, hist, sum_n, min_n, max_n,
-                                          gap_count, sum_gap, sum_gap2, max_gap, pass_count,
+                        _apply_difference(acc, hist, r * n_lon, ps, pl, cs, cl, n_lon, i, -1,
                                           kmax)
         # 4. this sample's intervals become the previous ones
         for s in range(n_sat):
-            c_lo = cur_rows[s, 0]
-            c_hi = cur_rows[s, 1]
-            for r in range(c_lo, c_hi):
+            for r in range(cur_rows[s, 0], cur_rows[s, 1]):
                 prev_start[s, r] = cur_start[s, r]
                 prev_len[s, r] = cur_len[s, r]
-            prev_rows[s, 0] = c_lo
-            prev_rows[s, 1] = c_hi
+            prev_rows[s, 0] = cur_rows[s, 0]
+            prev_rows[s, 1] = cur_rows[s, 1]
     visits[0] += nvis
 
 
 @numba.njit(cache=True, nogil=True)
-def close(n_steps, n_cur, t_last, gap_start, hist, sum_n, min_n, max_n, gap_count, sum_gap,
-          sum_gap2, max_gap):
+def close(n_steps, acc, hist):
     """Close every cell's open level and open gap at the end of the span (sample n_steps)."""
     kmax = hist.shape[1] - 1
-    for c in range(n_cur.shape[0]):
-        n_old = n_cur[c]
-        dur = n_steps - t_last[c]
-        if dur > 0:
-            lvl = n_old if n_old < kmax else kmax
-            hist[c, lvl] += dur
-            sum_n[c] += n_old * dur
-            if n_old < min_n[c]:
-                min_n[c] = n_old
-            if n_old > max_n[c]:
-                max_n[c] = n_old
-            t_last[c] = n_steps
-        if n_old == 0:
-            g = n_steps - gap_start[c]
-            if g > 0:
-                gap_count[c] += 1
-                sum_gap[c] += g
-                sum_gap2[c] += g * g
-                if g > max_gap[c]:
-                    max_gap[c] = g
-            gap_start[c] = n_steps
+    for c in range(acc.shape[0]):
+        _close_level(acc, hist, c, n_steps, kmax)
+        if acc[c, N_CUR] == 0:
+            _close_gap(acc, c, n_steps)
+            acc[c, GAP_START] = n_steps
 
 
 def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
@@ -460,15 +442,10 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
             rows["rho_km"], rows["z_km"], rows["sin_lat"], rows["cos_lat"], rows["psi_rad"],
             float(lon0_rad), float(dlon_rad), int(n_lon),
             float(el_min_rad), float(eta_max_rad), float(range_max_km),
-            st["n_cur"], st["t_last"], st["gap_start"], st["hist"], st["sum_n"], st["min_n"],
-            st["max_n"], st["gap_count"], st["sum_gap"], st["sum_gap2"], st["max_gap"],
-            st["pass_count"], st["prev_start"], st["prev_len"], st["prev_rows"],
+            st["acc"], st["hist"], st["prev_start"], st["prev_len"], st["prev_rows"],
             st["cur_start"], st["cur_len"], st["cur_rows"], st["visits"])
 
 
 def close_band(state: dict[str, np.ndarray], n_steps: int) -> None:
     """Python entry point to :func:`close`."""
-    st = state
-    close(int(n_steps), st["n_cur"], st["t_last"], st["gap_start"], st["hist"], st["sum_n"],
-          st["min_n"], st["max_n"], st["gap_count"], st["sum_gap"], st["sum_gap2"],
-          st["max_gap"])
+    close(int(n_steps), state["acc"], state["hist"])

@@ -1,0 +1,99 @@
+"""Coverage-engine benchmarks W1, W2, W3 (run by `make bench` through run_all.py).
+
+W1  Walker delta 48/8/1 at 60 deg, 1000 km, min elevation 15 deg, 2 deg grid, 12 h at 60 s:
+    covergrid against the brute-force numpy baseline (baseline_numpy.py) on the same study,
+    same values, in-process times after warm-up. Target: >= 100x faster.
+W2  Walker delta 1200/40/1 at 53 deg, 600 km, min elevation 25 deg, 1 deg grid, 24 h at 30 s.
+    Target: <= 30 s wall on 2 cores; the first call (JIT compile or cache load) reported apart.
+W3  12 satellites (3 planes, 98 deg, 700 km, max off-nadir 30 deg), 0.25 deg grid, 7 days at
+    10 s. Target: peak RSS <= 1.5 GB; wall time reported.
+
+Usage: python bench_coverage.py {w1,w2,w3} prints one JSON line.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import resource
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from covergrid.engine import GridSpec, SensorSpec, compute_coverage, n_samples  # noqa: E402
+from covergrid.metrics import METRICS  # noqa: E402
+from covergrid.orbits.walker import walker_delta  # noqa: E402
+
+RE = 6378.137
+EPOCH = "2027-01-01T00:00:00Z"
+
+
+def _peak_rss_mb() -> float:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def _timed(fn, repeat=1):
+    best = math.inf
+    out = None
+    for _ in range(repeat):
+        t = time.perf_counter()
+        out = fn()
+        best = min(best, time.perf_counter() - t)
+    return best, out
+
+
+def w1() -> dict:
+    from baseline_numpy import coverage_numpy
+
+    el = walker_delta(48, 8, 1, a_km=RE + 1000.0, i_rad=math.radians(60.0))
+    grid, sensor, span, step = GridSpec(2.0), SensorSpec(15.0), 12 * 3600.0, 60.0
+
+    def ours():
+        return compute_coverage(el, EPOCH, span, step, grid, sensor)
+
+    def base():
+        return coverage_numpy(el, np.datetime64("2027-01-01T00:00:00", "ns"),
+                              n_samples(span, step), step, grid, 15.0)
+
+    cold, _ = _timed(ours)
+    t_ours, ds = _timed(ours, repeat=3)
+    t_base, ref = _timed(base)
+    worst = 0.0
+    for m in METRICS:
+        a = ds[m].values.reshape(ref[m].shape)
+        worst = max(worst, float(np.max(np.abs(a - ref[m]))))
+    return {"bench": "W1", "covergrid_s": t_ours, "first_call_s": cold, "baseline_numpy_s": t_base,
+            "speedup": t_base / t_ours, "max_abs_difference": worst, "target": ">= 100x",
+            "visits": int(ds.visits), "visits_per_s": int(ds.visits) / t_ours}
+
+
+def w2() -> dict:
+    el = walker_delta(1200, 40, 1, a_km=RE + 600.0, i_rad=math.radians(53.0))
+    grid, sensor, span, step = GridSpec(1.0), SensorSpec(25.0), 24 * 3600.0, 30.0
+    small, _ = _timed(lambda: compute_coverage(el[:40] if hasattr(el, "__getitem__") else
+                                               el.subset(slice(0, 40)), EPOCH, 600.0, step,
+                                               grid, sensor))
+    t, ds = _timed(lambda: compute_coverage(el, EPOCH, span, step, grid, sensor))
+    return {"bench": "W2", "wall_s": t, "jit_warmup_s": small, "target": "<= 30 s on 2 cores",
+            "visits": int(ds.visits), "visits_per_s": int(ds.visits) / t,
+            "mean_coverage": float(ds.coverage_fraction.weighted(ds.cell_area).mean()),
+            "peak_rss_mb": _peak_rss_mb()}
+
+
+def w3() -> dict:
+    el = walker_delta(12, 3, 1, a_km=RE + 700.0, i_rad=math.radians(98.0))
+    grid = GridSpec(0.25)
+    sensor = SensorSpec(0.0, max_off_nadir_deg=30.0)
+    t, ds = _timed(lambda: compute_coverage(el, EPOCH, 7 * 86400.0, 10.0, grid, sensor))
+    return {"bench": "W3", "wall_s": t, "peak_rss_mb": _peak_rss_mb(), "target": "<= 1536 MB",
+            "visits": int(ds.visits), "visits_per_s": int(ds.visits) / t,
+            "mean_max_gap_h": float(ds.max_gap.weighted(ds.cell_area).mean()) / 3600}
+
+
+if __name__ == "__main__":
+    which = sys.argv[1] if len(sys.argv) > 1 else "w1"
+    print(json.dumps({"w1": w1, "w2": w2, "w3": w3}[which]()))
