@@ -50,10 +50,12 @@ __all__ = [
 ]
 
 # Tolerances of the special cases in cartesian_to_kepler. Vallado's RV2COE uses 1e-8 for
-# both (as does its port in the sgp4 package, sgp4.ext.rv2coe). We use 1e-11: folding a circular orbit (argp -> 0, nu -> argument of
-# latitude) keeps the direction of r but moves its length by up to 2 a e, which for
-# e < 1e-11 and a < 50,000 km is below one millimetre; 1e-11 is still four orders of
-# magnitude above the rounding noise of e computed from r and v (~1e-15).
+# both (as does its port in the sgp4 package, sgp4.ext.rv2coe). We use 1e-11: folding a
+# circular orbit (argp -> 0, nu -> argument of latitude) keeps the direction of r but
+# changes its length by up to 2 |r| e, and folding an equatorial one (raan -> 0) tilts r out
+# of its plane by up to 2 |r| i; for |r| < 50,000 km both stay below one millimetre. 1e-11
+# is still four orders of magnitude above the rounding noise of e and i computed from r
+# and v (~1e-15).
 ECCENTRICITY_TOL = 1e-11  # [unitless] e below this counts as circular
 INCLINATION_TOL_RAD = 1e-11  # [rad] i below this (or above pi minus this) counts as equatorial
 
