@@ -141,6 +141,8 @@ def test_walker_tpf_errors(tpf, field, text):
         ({"a_km": 6000.0}, "semi_major_axis_km", r"below the Earth's surface"),
         ({"a_km": float("nan")}, "semi_major_axis_km", r"finite, got nan"),
         ({"i_rad": float("nan")}, "inclination_rad", r"finite, got nan"),
+        ({"i_rad": -0.1}, "inclination_rad", r"in \[0, pi\], got -0\.1"),
+        ({"i_rad": 3.2}, "inclination_rad", r"in \[0, pi\], got 3\.2"),
     ],
 )  # fmt: skip
 def test_walker_bad_elements_name_field_and_value(kwargs, field, text):

@@ -859,7 +859,8 @@ def validate_elements(
     e : array_like
         Eccentricity, ``>= 0``; ``< 1`` when ``require_closed`` [unitless].
     i_rad, raan_rad, argp_rad, anomaly_rad : array_like, optional
-        Angles, checked for being finite [rad].
+        Angles, checked for being finite, the inclination also for lying in
+        ``[0, pi]`` [rad].
     ids : sequence of str, optional
         Satellite names, used in the message instead of indices.
     field_prefix : str, optional
@@ -899,6 +900,9 @@ def validate_elements(
         if val is not None:
             arr = np.asarray(val, dtype=np.float64)
             check(name, ~np.isfinite(arr), arr, "finite")
+    if i_rad is not None:
+        inc = np.asarray(i_rad, dtype=np.float64)
+        check("inclination_rad", (inc < 0.0) | (inc > np.pi), inc, "in [0, pi]")
     fin = np.isfinite(a) & np.isfinite(e_)
     check("eccentricity", fin & (e_ < 0.0), e_, ">= 0")
     if require_closed:
