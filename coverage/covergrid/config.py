@@ -413,12 +413,12 @@ class Study(_Model):
     duration_h: float = Field(gt=0.0, le=24.0 * 3660, description="Span [h].")
     step_s: float = Field(gt=0.0, description="Time step [s].")
     constellation: list[ConstellationGroup] = Field(min_length=1)
-    sensor: SensorSpec = Field(default_factory=SensorSpec)
-    grid: GridSpec = Field(default_factory=GridSpec)
+    sensor: SensorSpec = Field(default_factory=lambda: SensorSpec.model_validate({}))
+    grid: GridSpec = Field(default_factory=lambda: GridSpec.model_validate({}))
     requirement: RequirementSpec | None = None
-    maps: MapsSpec = Field(default_factory=MapsSpec)
-    compute: ComputeSpec = Field(default_factory=ComputeSpec)
-    output: OutputSpec = Field(default_factory=OutputSpec)
+    maps: MapsSpec = Field(default_factory=lambda: MapsSpec.model_validate({}))
+    compute: ComputeSpec = Field(default_factory=lambda: ComputeSpec.model_validate({}))
+    output: OutputSpec = Field(default_factory=lambda: OutputSpec.model_validate({}))
 
     _study_text = field_validator("study", mode="before")(_text_id)
 
@@ -720,7 +720,7 @@ _TYPE_WORDS = {
 }
 
 
-def _message(err: dict) -> tuple[list[tuple[tuple, str, Any]], bool]:
+def _message(err: Any) -> tuple[list[tuple[tuple, str, Any]], bool]:
     """One pydantic error -> located problems; the flag says whether to show the value."""
     kind, loc, ctx = err["type"], tuple(err["loc"]), err.get("ctx") or {}
     value = err.get("input")
@@ -743,7 +743,7 @@ def _message(err: dict) -> tuple[list[tuple[tuple, str, Any]], bool]:
             text = f"out of range; allowed: {bounds}"
         return [(loc, text, value)], True
     if kind == "literal_error":
-        return [(loc, f"not allowed{_hint(value, _literal_options(ctx))}; allowed: "
+        return [(loc, f"not allowed{_hint(str(value), _literal_options(ctx))}; allowed: "
                  f"{ctx.get('expected')}", value)], True
     if kind in ("too_short", "too_long"):
         lo, hi = _length_bounds(loc)

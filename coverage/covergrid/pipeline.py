@@ -314,6 +314,7 @@ def design_caption_for(study: Study) -> str:
     walkers = [g for g in study.constellation if g.walker is not None]
     if len(study.constellation) == 1 and walkers:
         w, t = walkers[0].walker, walkers[0].template
+        assert w is not None and t is not None
         info.update(pattern=w.pattern, total=w.total, planes=w.planes, phasing=w.phasing,
                     altitude_km=t.a_km - WGS84_A_KM, inclination_deg=t.inclination_deg)
     text = design_caption(info)

@@ -270,9 +270,10 @@ def requirement_verdict(ds: xr.Dataset, metric: str, *, at_most: float | None = 
         margin = threshold - achieved
         sense = "at_most"
     else:
+        assert at_least is not None
         threshold = float(at_least)
-        # The highest floor v met over the share: the smallest v with area{x >= v} ... done
-        # as a lower quantile of -x (upper tail of x).
+        # The highest floor v met over the share (largest v with area{x >= v} >= share),
+        # computed as the lower quantile of -x.
         achieved = -weighted_quantile(np.where(np.isnan(x), np.inf, -x), w, area_fraction)
         ok = x >= threshold
         margin = achieved - threshold
