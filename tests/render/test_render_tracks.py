@@ -123,3 +123,17 @@ def test_track_input_errors():
         tracks.plot_ground_tracks(lat, lat, planes=[0, 1, 2])
     with pytest.raises(CovergridError, match="max_sats"):
         tracks.plot_ground_tracks(lat, lat, max_sats=0)
+
+
+def test_any_plane_numbers_get_one_colour_each():
+    import matplotlib.pyplot as plt
+
+    lat = np.zeros((3, 4))
+    lon = np.array([[0.0, 10, 20, 30]] * 3)
+    lines = tracks.plot_ground_tracks(lat, lon, planes=[7, 7, 3])
+    try:
+        assert lines[0].get_color() == lines[1].get_color() != lines[2].get_color()
+        legend = [t.get_text() for t in lines[0].axes.get_legend().get_texts()]
+        assert legend == ["plane 2", "plane 1"]  # numbered by sorted plane value
+    finally:
+        plt.close(lines[0].axes.figure)

@@ -52,7 +52,7 @@ def _check_resolution(resolution: str) -> str:
 @functools.cache
 def _read_topology(resolution: str) -> dict:
     name = _check_resolution(resolution)
-    text = resources.files("covergrid.render").joinpath("data", name).read_text("utf-8")
+    text = resources.files("covergrid.render").joinpath("data").joinpath(name).read_text("utf-8")
     return json.loads(text)
 
 
@@ -109,8 +109,8 @@ def land_polygons(resolution: str = "110m") -> tuple[tuple[np.ndarray, ...], ...
 
     Raises
     ------
-    ValueError
-        If ``resolution`` is not bundled.
+    covergrid.errors.CovergridError
+        A ValueError subclass: if ``resolution`` is not bundled.
     """
     topology = _read_topology(resolution)
     arcs = _decode_arcs(topology)

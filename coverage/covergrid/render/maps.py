@@ -118,8 +118,8 @@ def get_projection(projection="robinson", *, centre_lon_deg: float = 0.0,
 
     Raises
     ------
-    ValueError
-        Unknown name; the message lists the valid names.
+    covergrid.errors.CovergridError
+        A ValueError subclass: unknown name; the message lists the valid names.
     """
     import cartopy.crs as ccrs
 
@@ -136,7 +136,7 @@ def _projection_name(projection) -> str | None:
     return projection if isinstance(projection, str) else None
 
 
-def _prepare_axes(ax, projection_name, band_deg):
+def _prepare_axes(ax, projection_name):
     """Extent, polar circle boundary, coastlines and gridlines for one map axes."""
     import cartopy.crs as ccrs
     import matplotlib.path as mpath
@@ -165,6 +165,8 @@ def _prepare_axes(ax, projection_name, band_deg):
                       y_inline=False if rectangular else None)
     gl.top_labels = False
     gl.right_labels = False
+    if projection_name == "orthographic":  # meridian labels crowd at the limb; keep latitudes
+        gl.bottom_labels = False
     gl.xlabel_style = {"size": 7}
     gl.ylabel_style = {"size": 7}
     return gl
@@ -191,7 +193,8 @@ def _metric_field(ds, metric: str, k: int | None):
         da = da.sel(k=int(k))
     elif k is not None:
         raise CovergridError(f"{k!r} given but {metric} has no fold dimension 'k'", field="k")
-    return da.transpose("lat", "lon"), (int(k) if "k" in ds[metric].dims else None)
+    fold = int(k) if k is not None and "k" in ds[metric].dims else None
+    return da.transpose("lat", "lon"), fold
 
 
 def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=None,
@@ -228,8 +231,8 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
 
     Raises
     ------
-    ValueError
-        Unknown metric, missing or unknown fold, or unknown projection.
+    covergrid.errors.CovergridError
+        A ValueError subclass: unknown metric, missing or unknown fold, or unknown projection.
     """
     import cartopy.crs as ccrs
     import matplotlib.pyplot as plt
@@ -248,12 +251,11 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
                                  centre_lat_deg=centre_lat_deg)
             fig = plt.figure(figsize=MAP_FIGSIZE_IN)
             ax = fig.add_axes((0.04, 0.19, 0.80, 0.72), projection=crs)
-            cax = fig.add_axes((0.875, 0.26, 0.022, 0.58))
             own_figure = True
         else:
-            fig, cax, own_figure = ax.figure, None, False
+            fig, own_figure = ax.figure, False
         name = _projection_name(projection) if own_figure else None
-        _prepare_axes(ax, name, (lat_edges[0], lat_edges[-1]))
+        _prepare_axes(ax, name)
 
         colormap = style.colormap_for(metric, units, cmap=cmap)
         norm, ticks = _norm_for(metric, units, shown)
@@ -261,7 +263,12 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
                              cmap=colormap, norm=norm, shading="flat", edgecolors="face",
                              linewidth=0, zorder=1,
                              rasterized=values.size > VECTOR_CELL_LIMIT)
-        if cax is not None:
+        if own_figure:
+            # Put the colour bar beside the map as drawn (narrow projections leave room).
+            ax.apply_aspect()
+            box = ax.get_position()
+            cax = fig.add_axes((min(box.x1 + 0.03, 0.86), box.y0 + 0.1 * box.height, 0.022,
+                                0.8 * box.height))
             cbar = fig.colorbar(mesh, cax=cax, ticks=ticks)
         else:
             cbar = fig.colorbar(mesh, ax=ax, shrink=0.8, ticks=ticks)
@@ -341,8 +348,9 @@ def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None
 
     Raises
     ------
-    ValueError
-        Unknown metric, fold or projection (raised before any file is written).
+    covergrid.errors.CovergridError
+        A ValueError subclass: unknown metric, fold or projection (raised before any file
+        is written).
     """
     import matplotlib.pyplot as plt
 
@@ -396,8 +404,9 @@ def design_caption(study_like: Mapping) -> str:
 
     Raises
     ------
-    ValueError
-        An unknown key (named, with the allowed keys), or T/P/F given only in part.
+    covergrid.errors.CovergridError
+        A ValueError subclass: an unknown key (named, with the allowed keys), or T/P/F
+        given only in part.
     """
     unknown = sorted(set(study_like) - _CAPTION_KEYS)
     if unknown:
@@ -415,7 +424,7 @@ def design_caption(study_like: Mapping) -> str:
                 f"total, planes and phasing go together; got {tpf}", field="design_caption"
             )
         pattern = s.get("pattern", "delta")
-        design.append(f"Walker {pattern} {int(tpf[0])}/{int(tpf[1])}/{int(tpf[2])}")
+        design.append(f"Walker {pattern} " + "/".join(str(int(v)) for v in tpf if v is not None))
     elif "pattern" in s:
         design.append(f"Walker {s['pattern']}")
     if "altitude_km" in s:

@@ -114,7 +114,7 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
         left = 0.7 / width
         bottom = _BOTTOM_IN / height
         panel_w = (width - 0.9) / len(metrics)
-        axes = []
+        axes: list = []
         for n, (metric, fold, prof) in enumerate(profiles):
             ax = fig.add_axes((left + n * panel_w / width, bottom,
                                (panel_w - 0.25) / width, PANEL_SIZE_IN[1] / height),

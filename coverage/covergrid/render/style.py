@@ -72,7 +72,7 @@ def report_style() -> Iterator[None]:
     """Temporarily apply the report font sizes and line widths (``matplotlib.rc_context``)."""
     import matplotlib as mpl
 
-    rc = {
+    rc: dict = {
         "font.size": _FONT_PT["base"],
         "axes.titlesize": _FONT_PT["title"],
         "axes.labelsize": _FONT_PT["base"],

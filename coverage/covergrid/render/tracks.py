@@ -146,17 +146,19 @@ def split_at_antimeridian(lat_deg, lon_deg) -> list[tuple[np.ndarray, np.ndarray
     return pieces
 
 
-def _group_colours(groups: np.ndarray):
+def _group_colours(groups: np.ndarray) -> list:
+    """One colour per distinct group value (any integers), per the module's rule."""
     import matplotlib as mpl
 
-    n = int(groups.max()) + 1 if groups.size else 1
+    _, index = np.unique(groups, return_inverse=True)
+    n = int(index.max()) + 1 if index.size else 1
     if n <= 10:
-        colours = mpl.colormaps["tab10"].colors[:n]
+        colours = mpl.colormaps["tab10"](np.arange(n))
     elif n <= 20:
-        colours = mpl.colormaps["tab20"].colors[:n]
+        colours = mpl.colormaps["tab20"](np.arange(n))
     else:
         colours = mpl.colormaps["viridis"](np.linspace(0.0, 0.9, n))
-    return [colours[g] for g in groups]
+    return [tuple(colours[g]) for g in index.reshape(-1)]
 
 
 def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, planes=None,
@@ -221,6 +223,7 @@ def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, pl
         shown = np.lexsort((groups, rank))[: int(max_sats)]
         shown.sort()
     colours = _group_colours(groups)
+    rank_of = {g: n for n, g in enumerate(np.unique(groups))}  # legend numbers 1..n
 
     with style.report_style():
         if ax is None:
@@ -233,16 +236,16 @@ def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, pl
         name = projection if own_figure and isinstance(projection, str) else None
         ax.add_geometries([land_geometry("110m")], crs=ccrs.PlateCarree(), facecolor="0.92",
                           edgecolor="none", zorder=0)
-        _prepare_axes(ax, name, (-90.0, 90.0))
+        _prepare_axes(ax, name)
         lines = []
         labelled = set()
         for s in shown:
             label = None
             if planes is not None and groups[s] not in labelled:
-                label = f"plane {groups[s] + 1}"
+                label = f"plane {rank_of[groups[s]] + 1}"
                 labelled.add(groups[s])
             elif planes is None and ids is not None and n_sat <= 12:
-                label = ids[s]
+                label = ids[int(s)]
             for n, (plat, plon) in enumerate(split_at_antimeridian(lat[s], lon[s])):
                 (line,) = ax.plot(plon, plat, color=colours[s], linewidth=0.9,
                                   transform=ccrs.PlateCarree(), zorder=5,
