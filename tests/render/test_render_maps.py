@@ -194,6 +194,11 @@ def test_design_caption_full_and_partial():
     assert text == ("Walker delta 24/3/1, altitude 550 km, inclination 53\u00b0. Sensor: minimum "
                     "elevation 10\u00b0, maximum off-nadir 45\u00b0. Span 24 h from "
                     "2031-03-20T00:00:00Z, step 60 s.")
+    import datetime
+
+    plus_one_h = datetime.timezone(datetime.timedelta(hours=1))
+    aware = datetime.datetime(2031, 3, 20, 1, 0, tzinfo=plus_one_h)
+    assert maps.design_caption({"epoch": aware}) == "Epoch 2031-03-20T00:00:00Z."
     short = maps.design_caption({"altitude_km": 1200.5, "step_s": 30, "max_range_km": 2500})
     assert short == "Altitude 1200.5 km. Sensor: maximum range 2500 km. Step 30 s."
     assert maps.design_caption({"pattern": "star", "inclination_deg": 86.4}) == (

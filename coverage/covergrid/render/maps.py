@@ -14,6 +14,7 @@ small). ``nfold_fraction`` is drawn once per fold ``k``: ``maps/nfold_fraction_k
 
 from __future__ import annotations
 
+import datetime as _dt
 import os
 from collections.abc import Callable, Iterable, Mapping
 from pathlib import Path
@@ -446,6 +447,8 @@ def design_caption(study_like: Mapping) -> str:
     span = f"Span {_fmt(s['duration_h'], 2)} h" if "duration_h" in s else ""
     if "epoch" in s:
         epoch = s["epoch"]
+        if isinstance(epoch, _dt.datetime):
+            epoch = np.datetime64(epoch.astimezone(_dt.timezone.utc).replace(tzinfo=None))
         if isinstance(epoch, np.datetime64):
             epoch = np.datetime_as_string(epoch.astype("datetime64[s]")) + "Z"
         span += (" from " if span else "Epoch ") + str(epoch)
