@@ -57,6 +57,14 @@ def test_defaults_are_filled_in():
     assert s.n_steps == 360 and s.duration_s == 21600.0 and s.n_satellites == 6
 
 
+def test_listed_keplerian_satellite_gets_zero_defaults():
+    data = parse_yaml(MINIMAL)
+    data["constellation"] = [{"satellites": [{"id": "a", "altitude_km": 700,
+                                              "inclination_deg": 98, "mean_anomaly_deg": 5}]}]
+    sat = parse_study(data).resolved_dict()["constellation"][0]["satellites"][0]
+    assert (sat["eccentricity"], sat["raan_deg"], sat["arg_perigee_deg"]) == (0.0, 0.0, 0.0)
+
+
 def test_resolved_yaml_round_trips_to_the_same_study():
     s = _study()
     again = parse_study(parse_yaml(s.dump_resolved_yaml()))
@@ -89,7 +97,10 @@ def test_to_elements_listed_satellites_and_group_names():
          raan_deg: 30, arg_perigee_deg: 90, true_anomaly_deg: 0}
       - {id: 7, position_km: [7000, 0, 0], velocity_km_s: [0, 7.546, 0]}
 """
-    es = _study(text).to_elements()
+    s = _study(text)
+    sat = s.resolved_dict()["constellation"][1]["satellites"][1]
+    assert sat["eccentricity"] is None and sat["position_km"] == [7000.0, 0.0, 0.0]
+    es = s.to_elements()
     assert es.ids[0] == "ring-P01-01" and es.ids[-2:] == ("probe", "7")
     assert es.a_km[-2] == 7000.0
     np.testing.assert_allclose(es.raan_rad[-2], math.radians(30.0), atol=FLOAT_ANGLE_RAD)

@@ -176,10 +176,12 @@ class SatelliteSpec(_Model):
     id: str = Field(min_length=1, max_length=64, description="Unique satellite identifier.")
     altitude_km: float | None = Field(None, gt=0.0, description="a minus R_E [km].")
     semi_major_axis_km: float | None = Field(None, gt=0.0, description="Semi-major axis [km].")
-    eccentricity: float | None = Field(None, ge=0.0, lt=1.0, description="Eccentricity.")
+    eccentricity: float | None = Field(None, ge=0.0, lt=1.0,
+                                       description="Eccentricity (0 if not given).")
     inclination_deg: Inclination | None = Field(None, description="Inclination [deg].")
-    raan_deg: Angle360 | None = Field(None, description="RAAN [deg] (default 0).")
-    arg_perigee_deg: Angle360 | None = Field(None, description="Argument of perigee [deg].")
+    raan_deg: Angle360 | None = Field(None, description="RAAN [deg] (0 if not given).")
+    arg_perigee_deg: Angle360 | None = Field(None, description="Argument of perigee [deg] (0 if "
+                                             "not given).")
     true_anomaly_deg: Angle360 | None = Field(None, description="True anomaly [deg].")
     mean_anomaly_deg: Angle360 | None = Field(None, description="Mean anomaly [deg].")
     position_km: Vector3 | None = Field(None, description="Inertial (GCRS-like) position [km].")
@@ -191,6 +193,16 @@ class SatelliteSpec(_Model):
     )
 
     _id_text = field_validator("id", mode="before")(_text_id)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _element_defaults(cls, data: Any) -> Any:
+        """Fill eccentricity, RAAN and argument of perigee with 0 for Keplerian satellites."""
+        if isinstance(data, dict) and "position_km" not in data and "velocity_km_s" not in data:
+            data = dict(data)
+            for key in ("eccentricity", "raan_deg", "arg_perigee_deg"):
+                data.setdefault(key, 0.0)
+        return data
 
     @property
     def is_state_vector(self) -> bool:
