@@ -65,6 +65,14 @@ def test_profile_panels_and_units():
         expected_h = profiles.latitude_profile(ds, "max_gap")["mean"] / 3600.0
         np.testing.assert_allclose(mean_line.get_xdata(), expected_h, rtol=0, atol=ROUNDING)
         assert style.FOOTER in [t.get_text() for t in axes[0].figure.texts]
+        assert axes[0].get_ylim() == (-90.0, 90.0)
+    finally:
+        plt.close(axes[0].figure)
+    band = make_dataset(10.0, lat_min_deg=-60.0, lat_max_deg=60.0)
+    axes = profiles.plot_latitude_profile(band, ["max_gap"])
+    try:
+        assert axes[0].get_ylim() == (-60.0, 60.0)  # the axis spans the computed band
+        np.testing.assert_array_equal(axes[0].get_yticks(), [-60, -30, 0, 30, 60])
     finally:
         plt.close(axes[0].figure)
     with pytest.raises(ValueError, match="at least one metric"):

@@ -108,6 +108,10 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
     for metric in metrics:
         fold = k if k is not None else (1 if metric in ds and "k" in ds[metric].dims else None)
         profiles.append((metric, fold, latitude_profile(ds, metric, k=fold)))
+    # Latitude axis: the computed band, ticked every 30, 15 or 10 deg as it narrows.
+    lat_lo, lat_hi = float(np.min(ds["lat_bnds"].values)), float(np.max(ds["lat_bnds"].values))
+    tick = 30.0 if lat_hi - lat_lo > 90 else 15.0 if lat_hi - lat_lo > 40 else 10.0
+    lat_ticks = np.arange(np.ceil(lat_lo / tick) * tick, lat_hi + tick / 2, tick)
     width, height = _figsize(len(metrics))
     with style.report_style():
         fig = plt.figure(figsize=(width, height))
@@ -127,8 +131,8 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
                              color=colour, alpha=0.25, linewidth=0, label="min to max")
             ax.plot(prof["mean"] * unit.factor, lat, color=colour, label="area-weighted mean")
             ax.set_xlabel(style.metric_label(metric, attrs, unit, k=fold), wrap=True)
-            ax.set_ylim(-90, 90)
-            ax.set_yticks(np.arange(-90, 91, 30))
+            ax.set_ylim(lat_lo, lat_hi)
+            ax.set_yticks(lat_ticks)
             ax.grid(True, linewidth=0.3, color="0.8")
             if n == 0:
                 ax.set_ylabel("latitude [deg]")
