@@ -270,3 +270,20 @@ def test_run_with_figures(tmp_path):
     assert {"ground_tracks.png", "ground_tracks.pdf", "latitude_profile.png",
             "latitude_profile.pdf"} <= names
     assert (folder / "maps" / "max_gap.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_scheduler_address_of_an_existing_cluster(tmp_path, capsys):
+    distributed = pytest.importorskip("distributed")
+    study = _write(tmp_path, TINY)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, host="127.0.0.1",
+                                  dashboard_address=None, processes=False,
+                                  protocol="tcp://") as cluster:
+        address = cluster.scheduler_address
+        assert address.startswith("tcp://127.0.0.1:")
+        assert cli.main(["run", str(study), "--out", str(tmp_path / "c"), "--no-maps",
+                         "--quiet", "--scheduler", address]) == 0
+    assert cli.main(["run", str(study), "--out", str(tmp_path / "t"), "--no-maps",
+                     "--quiet"]) == 0
+    with xr.open_dataset(tmp_path / "c" / "tiny-ring" / "coverage.nc") as a, \
+            xr.open_dataset(tmp_path / "t" / "tiny-ring" / "coverage.nc") as b:
+        xr.testing.assert_identical(a.drop_attrs(), b.drop_attrs())
