@@ -259,6 +259,7 @@ def test_console_script_runs_in_a_real_process(tmp_path):
     assert "study tiny-ring: valid" in proc.stdout
 
 
+@pytest.mark.slow  # cartopy figures: 3-8 s
 def test_run_with_figures(tmp_path):
     pytest.importorskip("cartopy")
     study = _write(tmp_path, TINY)
