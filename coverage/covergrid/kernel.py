@@ -82,9 +82,8 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
         "prev_start": np.zeros((n_sat, n_rows), np.int32),
         "prev_len": np.zeros((n_sat, n_rows), np.int32),
         "prev_rows": np.zeros((n_sat, 2), np.int32),
-        "cur_start": np.zeros((n_sat, n_rows), np.int32),
-        "cur_len": np.zeros((n_sat, n_rows), np.int32),
-        "cur_rows": np.zeros((n_sat, 2), np.int32),
+        # queued exits of one sample: (row, prev start, prev length, new start, new length)
+        "exits": np.zeros((n_sat * n_rows, 5), np.int32),
         "visits": np.zeros(1, np.int64),
     }
 
@@ -313,8 +312,13 @@ def _apply_difference(a, h, base, sa, la, sb, lb, n_lon, i, delta, kmax):
 @numba.njit(cache=True, nogil=True)
 def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
             el_min_rad, eta_max_rad, range_max_km, acc, hist, prev_start, prev_len, prev_rows,
-            cur_start, cur_len, cur_rows, visits):
+            exits, visits):
     """Advance one latitude band's streaming state over a block of samples.
+
+    For each sample, each satellite's rows are visited once: the row's new interval is found,
+    the cells it adds are counted in at once (+1), the cells it drops are queued, and the new
+    interval replaces the old. The queued exits (-1) are applied after every satellite's
+    entries, so that a hand-over within one sample never passes through zero in view.
 
     Parameters
     ----------
@@ -328,7 +332,7 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
         Western edge of column 0 and column width [rad]; n_lon columns cover 360 deg.
     el_min_rad, eta_max_rad, range_max_km : float
         Sensor limits; eta_max_rad <= 0 and range_max_km <= 0 mean "no limit".
-    acc, hist, prev_start ... cur_rows : ndarray
+    acc, hist, prev_start, prev_len, prev_rows, exits : ndarray
         State from :func:`new_state`, updated in place.
     visits : ndarray, (1,)
         Running count of satellite-sample-cell visibilities (for benchmarks), in place.
@@ -354,71 +358,67 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
     nvis = 0
     for b in range(n_block):
         i = i0 + b
-        # 1. this sample's interval of every satellite in every candidate row
+        n_exits = 0
         for s in range(n_sat):
             sx = pos_km[s, b, 0]
             sy = pos_km[s, b, 1]
             sz = pos_km[s, b, 2]
             rs2 = sx * sx + sy * sy + sz * sz
             rs = math.sqrt(rs2)
-            cur_rows[s, 0] = 0
-            cur_rows[s, 1] = 0
+            c_lo = 0
+            c_hi = 0
             lam = _central_angle_bound(rs, el_min_rad, eta_max_rad, range_max_km)
-            if lam < 0.0:
-                continue
             sps = sz / rs
-            psi_s = math.asin(sps)
-            if psi_s + lam < psi_lo_band or psi_s - lam > psi_hi_band:
+            if lam >= 0.0:
+                psi_s = math.asin(sps)
+                if psi_s + lam >= psi_lo_band and psi_s - lam <= psi_hi_band:
+                    c_lo = np.searchsorted(psi, psi_s - lam)
+                    c_hi = np.searchsorted(psi, psi_s + lam, side="right")
+            p_lo = prev_rows[s, 0]
+            p_hi = prev_rows[s, 1]
+            if p_lo >= p_hi:
+                lo, hi = c_lo, c_hi
+            elif c_lo >= c_hi:
+                lo, hi = p_lo, p_hi
+            else:
+                lo, hi = min(p_lo, c_lo), max(p_hi, c_hi)
+            if lo >= hi:
                 continue
-            r_lo = np.searchsorted(psi, psi_s - lam)
-            r_hi = np.searchsorted(psi, psi_s + lam, side="right")
-            cur_rows[s, 0] = r_lo
-            cur_rows[s, 1] = r_hi
             lon_s = math.atan2(sy, sx)
             cps = math.sqrt(max(1.0 - sps * sps, 0.0))
             cos_lam = math.cos(lam)
-            for r in range(r_lo, r_hi):
-                st, ln = _row_interval(sx, sy, sz, rs2, lon_s, sps, cps, cos_lam, rho[r], zr[r],
-                                       sin_lat[r], cos_lat[r], sin_psi[r], cos_psi[r], cos_lon,
-                                       sin_lon, lon0, dlon, n_lon, sin2_el, cos2_eta, range2)
-                cur_start[s, r] = st
-                cur_len[s, r] = ln
-                nvis += ln
-        # 2. entries of all satellites, then 3. exits of all satellites: a hand-over within
-        # one sample never passes through zero satellites in view
-        for phase in range(2):
-            delta = 1 if phase == 0 else -1
-            for s in range(n_sat):
-                p_lo = prev_rows[s, 0]
-                p_hi = prev_rows[s, 1]
-                c_lo = cur_rows[s, 0]
-                c_hi = cur_rows[s, 1]
-                if p_lo >= p_hi:
-                    lo, hi = c_lo, c_hi
-                elif c_lo >= c_hi:
-                    lo, hi = p_lo, p_hi
-                else:
-                    lo, hi = min(p_lo, c_lo), max(p_hi, c_hi)
-                for r in range(lo, hi):
-                    in_c = c_lo <= r < c_hi
-                    in_p = p_lo <= r < p_hi
-                    cs = cur_start[s, r] if in_c else 0
-                    cl = cur_len[s, r] if in_c else 0
-                    ps = prev_start[s, r] if in_p else 0
-                    pl = prev_len[s, r] if in_p else 0
-                    if phase == 0:
-                        _apply_difference(acc, hist, r * n_lon, cs, cl, ps, pl, n_lon, i, 1,
-                                          kmax)
-                    else:
-                        _apply_difference(acc, hist, r * n_lon, ps, pl, cs, cl, n_lon, i, -1,
-                                          kmax)
-        # 4. this sample's intervals become the previous ones
-        for s in range(n_sat):
-            for r in range(cur_rows[s, 0], cur_rows[s, 1]):
-                prev_start[s, r] = cur_start[s, r]
-                prev_len[s, r] = cur_len[s, r]
-            prev_rows[s, 0] = cur_rows[s, 0]
-            prev_rows[s, 1] = cur_rows[s, 1]
+            for r in range(lo, hi):
+                cs = 0
+                cl = 0
+                if c_lo <= r < c_hi:
+                    cs, cl = _row_interval(sx, sy, sz, rs2, lon_s, sps, cps, cos_lam, rho[r],
+                                           zr[r], sin_lat[r], cos_lat[r], sin_psi[r],
+                                           cos_psi[r], cos_lon, sin_lon, lon0, dlon, n_lon,
+                                           sin2_el, cos2_eta, range2)
+                    nvis += cl
+                ps = 0
+                pl = 0
+                if p_lo <= r < p_hi:
+                    ps = prev_start[s, r]
+                    pl = prev_len[s, r]
+                if cs == ps and cl == pl:
+                    continue
+                _apply_difference(acc, hist, r * n_lon, cs, cl, ps, pl, n_lon, i, 1, kmax)
+                if pl > 0:
+                    exits[n_exits, 0] = r
+                    exits[n_exits, 1] = ps
+                    exits[n_exits, 2] = pl
+                    exits[n_exits, 3] = cs
+                    exits[n_exits, 4] = cl
+                    n_exits += 1
+                prev_start[s, r] = cs
+                prev_len[s, r] = cl
+            prev_rows[s, 0] = c_lo
+            prev_rows[s, 1] = c_hi
+        for q in range(n_exits):
+            r = exits[q, 0]
+            _apply_difference(acc, hist, r * n_lon, exits[q, 1], exits[q, 2], exits[q, 3],
+                              exits[q, 4], n_lon, i, -1, kmax)
     visits[0] += nvis
 
 
@@ -443,7 +443,7 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
             float(lon0_rad), float(dlon_rad), int(n_lon),
             float(el_min_rad), float(eta_max_rad), float(range_max_km),
             st["acc"], st["hist"], st["prev_start"], st["prev_len"], st["prev_rows"],
-            st["cur_start"], st["cur_len"], st["cur_rows"], st["visits"])
+            st["exits"], st["visits"])
 
 
 def close_band(state: dict[str, np.ndarray], n_steps: int) -> None:
