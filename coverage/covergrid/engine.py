@@ -242,11 +242,15 @@ def compute_coverage(
     n_lon = grid.n_lon
 
     depth = len(_PLANAR) + nfold_max + 1
-    stacks = [da.from_delayed(
-        dask.delayed(_band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid, b,
-                                            sensor, int(nfold_max)),
-        shape=(depth, b[1] - b[0], n_lon), dtype=np.float64) for b in bands]
-    stack = da.concatenate(stacks, axis=1)
+    tasks = [dask.delayed(_band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid,
+                                                  b, sensor, int(nfold_max)) for b in bands]
+    if compute:
+        # run the band tasks and assemble with numpy: no dask-array graph to optimise
+        stack = np.concatenate(_compute_tasks(tasks, scheduler, progress), axis=1)
+    else:
+        stack = da.concatenate([da.from_delayed(t, shape=(depth, b[1] - b[0], n_lon),
+                                                dtype=np.float64) for t, b in zip(tasks, bands)],
+                               axis=1)
     data: dict[str, Any] = {}
     for idx, name in enumerate(_PLANAR):
         arr = stack[idx]
@@ -288,13 +292,11 @@ def compute_coverage(
     })
     if attrs:
         ds.attrs.update(dict(attrs))
-    if not compute:
-        return ds
-    return _compute(ds, scheduler, progress, len(bands))
+    return ds
 
 
-def _compute(ds: xr.Dataset, scheduler: str | Any, progress: bool, n_bands: int) -> xr.Dataset:
-    """Compute a lazy Dataset on the chosen scheduler, optionally with a progress bar."""
+def _compute_tasks(tasks: list[Any], scheduler: str | Any, progress: bool) -> list[np.ndarray]:
+    """Compute the band tasks on the chosen scheduler, optionally with a progress bar."""
     import dask
 
     if isinstance(scheduler, str):
@@ -307,11 +309,9 @@ def _compute(ds: xr.Dataset, scheduler: str | Any, progress: bool, n_bands: int)
     else:  # a dask.distributed Client
         kwargs = {"scheduler": scheduler}
     if progress:
-        with _BandProgress(n_bands):
-            (out,) = dask.compute(ds, **kwargs)
-    else:
-        (out,) = dask.compute(ds, **kwargs)
-    return out
+        with _BandProgress(len(tasks)):
+            return list(dask.compute(*tasks, **kwargs))
+    return list(dask.compute(*tasks, **kwargs))
 
 
 class _BandProgress:
