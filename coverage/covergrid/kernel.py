@@ -47,7 +47,8 @@ _BIG = np.int32(2**30)
 # memory so that touching a cell is one or two cache lines)
 N_CUR, T_LAST, GAP_START, SUM_N, MIN_N, MAX_N, GAP_COUNT, SUM_GAP, SUM_GAP2, MAX_GAP, \
     PASS_COUNT = range(11)
-_N_FIELDS = 11
+#: first column of the level histogram (samples spent at 0, 1, .., K-1 and >= K in view)
+HIST0 = 11
 _FIELDS = {"sum_n": SUM_N, "min_n": MIN_N, "max_n": MAX_N, "gap_count": GAP_COUNT,
            "sum_gap": SUM_GAP, "sum_gap2": SUM_GAP2, "max_gap": MAX_GAP,
            "pass_count": PASS_COUNT}
@@ -70,15 +71,15 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
     Returns
     -------
     dict of ndarray
-        ``acc`` (n_cells, 11) int64 per-cell accumulators (columns ``N_CUR`` ...
-        ``PASS_COUNT`` of this module), ``hist`` (n_cells, K+1) samples spent at each level,
+        ``acc`` (n_cells, 11 + K + 1) int64 per-cell accumulators: columns ``N_CUR`` ...
+        ``PASS_COUNT`` of this module, then from ``HIST0`` the samples spent at each level
+        (one row per cell, so that touching a cell reads one or two cache lines),
         the previous and current interval of every satellite in every row, and ``visits``.
     """
-    acc = np.zeros((n_cells, _N_FIELDS), np.int64)
+    acc = np.zeros((n_cells, HIST0 + nfold_max + 1), np.int64)
     acc[:, MIN_N] = 2**40
     return {
         "acc": acc,
-        "hist": np.zeros((n_cells, nfold_max + 1), np.int64),
         "prev_start": np.zeros((n_sat, n_rows), np.int32),
         "prev_len": np.zeros((n_sat, n_rows), np.int32),
         "prev_rows": np.zeros((n_sat, 2), np.int32),
@@ -92,7 +93,7 @@ def accumulators(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     """The closed-out accumulators by name, as :func:`covergrid.metrics.finalise` takes them."""
     acc = state["acc"]
     out = {name: acc[:, col] for name, col in _FIELDS.items()}
-    out["hist"] = state["hist"]
+    out["hist"] = acc[:, HIST0:]
     return out
 
 
@@ -239,12 +240,12 @@ def _row_interval(sx, sy, sz, rs2, lon_s, sin_psi_s, cos_psi_s, cos_lam, rho, zc
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _close_level(a, h, c, i, kmax):
+def _close_level(a, c, i, kmax):
     """Record the level cell c has held since its last change, up to sample i."""
     dur = i - a[c, T_LAST]
     if dur > 0:
         n_old = a[c, N_CUR]
-        h[c, n_old if n_old < kmax else kmax] += dur
+        a[c, HIST0 + (n_old if n_old < kmax else kmax)] += dur
         a[c, SUM_N] += n_old * dur
         if n_old < a[c, MIN_N]:
             a[c, MIN_N] = n_old
@@ -266,12 +267,12 @@ def _close_gap(a, c, i):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _change_range(a, h, base, j0, j1, n_lon, i, delta, kmax):
+def _change_range(a, base, j0, j1, n_lon, i, delta, kmax):
     """Apply a +1 (a pass starts) or -1 change of the in-view count at sample i to the
     columns j0 .. j1-1 (taken modulo n_lon) of the row starting at cell `base`."""
     for jj in range(j0, j1):
         c = base + jj % n_lon
-        _close_level(a, h, c, i, kmax)
+        _close_level(a, c, i, kmax)
         n_old = a[c, N_CUR]
         a[c, N_CUR] = n_old + delta
         if delta > 0:
@@ -284,19 +285,19 @@ def _change_range(a, h, base, j0, j1, n_lon, i, delta, kmax):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _apply_difference(a, h, base, sa, la, sb, lb, n_lon, i, delta, kmax):
+def _apply_difference(a, base, sa, la, sb, lb, n_lon, i, delta, kmax):
     """Apply `delta` to the cells of interval A that are not in interval B (one row)."""
     if la == 0:
         return 0
     if lb == 0:
-        return _change_range(a, h, base, sa, sa + la, n_lon, i, delta, kmax)
+        return _change_range(a, base, sa, sa + la, n_lon, i, delta, kmax)
     if la + lb >= n_lon:
         # long arcs may overlap in two pieces: test membership cell by cell (polar rows)
         touched = 0
         for m in range(la):
             j = (sa + m) % n_lon
             if (j - sb) % n_lon >= lb:
-                touched += _change_range(a, h, base, j, j + 1, n_lon, i, delta, kmax)
+                touched += _change_range(a, base, j, j + 1, n_lon, i, delta, kmax)
         return touched
     # two arcs shorter than the circle together overlap in at most one piece; unwrap B to
     # the copy whose centre is nearest A's centre, then A \ B = [a0, b0) U [b1, a1)
@@ -304,14 +305,14 @@ def _apply_difference(a, h, base, sa, la, sb, lb, n_lon, i, delta, kmax):
     k = int(math.floor(((2 * sb + lb) - (2 * sa + la)) / (2.0 * n_lon) + 0.5))
     b0 = sb - k * n_lon
     b1 = b0 + lb
-    touched = _change_range(a, h, base, sa, min(a1, b0), n_lon, i, delta, kmax)
-    touched += _change_range(a, h, base, max(b1, sa), a1, n_lon, i, delta, kmax)
+    touched = _change_range(a, base, sa, min(a1, b0), n_lon, i, delta, kmax)
+    touched += _change_range(a, base, max(b1, sa), a1, n_lon, i, delta, kmax)
     return touched
 
 
 @numba.njit(cache=True, nogil=True)
 def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
-            el_min_rad, eta_max_rad, range_max_km, acc, hist, prev_start, prev_len, prev_rows,
+            el_min_rad, eta_max_rad, range_max_km, acc, prev_start, prev_len, prev_rows,
             exits, visits):
     """Advance one latitude band's streaming state over a block of samples.
 
@@ -332,7 +333,7 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
         Western edge of column 0 and column width [rad]; n_lon columns cover 360 deg.
     el_min_rad, eta_max_rad, range_max_km : float
         Sensor limits; eta_max_rad <= 0 and range_max_km <= 0 mean "no limit".
-    acc, hist, prev_start, prev_len, prev_rows, exits : ndarray
+    acc, prev_start, prev_len, prev_rows, exits : ndarray
         State from :func:`new_state`, updated in place.
     visits : ndarray, (1,)
         Running count of satellite-sample-cell visibilities (for benchmarks), in place.
@@ -340,7 +341,7 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
     n_sat = pos_km.shape[0]
     n_block = pos_km.shape[1]
     n_rows = rho.shape[0]
-    kmax = hist.shape[1] - 1
+    kmax = acc.shape[1] - HIST0 - 1
     sin_el = math.sin(el_min_rad)
     sin2_el = sin_el * sin_el
     cos2_eta = math.cos(eta_max_rad) ** 2 if eta_max_rad > 0.0 else -1.0
@@ -403,7 +404,7 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
                     pl = prev_len[s, r]
                 if cs == ps and cl == pl:
                     continue
-                _apply_difference(acc, hist, r * n_lon, cs, cl, ps, pl, n_lon, i, 1, kmax)
+                _apply_difference(acc, r * n_lon, cs, cl, ps, pl, n_lon, i, 1, kmax)
                 if pl > 0:
                     exits[n_exits, 0] = r
                     exits[n_exits, 1] = ps
@@ -417,17 +418,17 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
             prev_rows[s, 1] = c_hi
         for q in range(n_exits):
             r = exits[q, 0]
-            _apply_difference(acc, hist, r * n_lon, exits[q, 1], exits[q, 2], exits[q, 3],
+            _apply_difference(acc, r * n_lon, exits[q, 1], exits[q, 2], exits[q, 3],
                               exits[q, 4], n_lon, i, -1, kmax)
     visits[0] += nvis
 
 
 @numba.njit(cache=True, nogil=True)
-def close(n_steps, acc, hist):
+def close(n_steps, acc):
     """Close every cell's open level and open gap at the end of the span (sample n_steps)."""
-    kmax = hist.shape[1] - 1
+    kmax = acc.shape[1] - HIST0 - 1
     for c in range(acc.shape[0]):
-        _close_level(acc, hist, c, n_steps, kmax)
+        _close_level(acc, c, n_steps, kmax)
         if acc[c, N_CUR] == 0:
             _close_gap(acc, c, n_steps)
             acc[c, GAP_START] = n_steps
@@ -442,10 +443,10 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
             rows["rho_km"], rows["z_km"], rows["sin_lat"], rows["cos_lat"], rows["psi_rad"],
             float(lon0_rad), float(dlon_rad), int(n_lon),
             float(el_min_rad), float(eta_max_rad), float(range_max_km),
-            st["acc"], st["hist"], st["prev_start"], st["prev_len"], st["prev_rows"],
+            st["acc"], st["prev_start"], st["prev_len"], st["prev_rows"],
             st["exits"], st["visits"])
 
 
 def close_band(state: dict[str, np.ndarray], n_steps: int) -> None:
     """Python entry point to :func:`close`."""
-    close(int(n_steps), state["acc"], state["hist"])
+    close(int(n_steps), state["acc"])
