@@ -1,6 +1,7 @@
 """The ``covergrid`` command line: a thin layer over :mod:`covergrid.pipeline`.
 
-Commands: ``run`` (compute a study and write its outputs), ``check`` (validate and estimate
+Commands: ``run`` (compute a study and write its outputs), ``sweep`` and ``size`` (trade
+studies, :mod:`covergrid.sweep`, :mod:`covergrid.sizing`), ``check`` (validate and estimate
 without computing), ``elements`` (state vector <-> Keplerian elements for one orbit) and
 ``schema`` (print the study file's JSON Schema).
 """
@@ -27,6 +28,7 @@ _EPILOG = """\
 exit status:
   0  success (and, for run, the study's requirement is met or none is given)
   1  run: the study's requirement is not met (all outputs are still written)
+     size: no design up to sizing.total.max meets the requirement
   2  bad input: invalid study file or option, not enough memory, output folder not
      writable; one message on stderr names the field by its dotted path; nothing written
   130 interrupted (Ctrl-C); no partial file is left at a final path
@@ -92,6 +94,24 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("--mu-km3-s2", type=float, default=None,
                    help="gravitational parameter [km^3/s^2] (default WGS 84: 398600.4418)")
 
+    for name, what, files in (
+            ("sweep", "evaluate every design of the study's sweep block",
+             "sweep.csv, sweep.nc, store/, trades/"),
+            ("size", "find the smallest constellation meeting the requirement (sizing block)",
+             "sizing.csv, sizing.json, sizing_designs.csv/.nc, store/, trades/")):
+        t = sub.add_parser(name, help=what, epilog=_EPILOG, formatter_class=fmt,
+                           description=f"{what[0].upper()}{what[1:]} and write DIR/<study>/: "
+                           f"{files}. Finished designs are kept in store/; a rerun computes "
+                           "only the designs not stored yet.")
+        t.add_argument("study", metavar="STUDY.yaml", help="the study file")
+        t.add_argument("--out", metavar="DIR", default="outputs",
+                       help="output root; results go to DIR/<study>/ (default: outputs)")
+        t.add_argument("--scheduler", metavar="NAME",
+                       help="override compute.scheduler: threads, synchronous, processes, "
+                       "local-cluster or tcp://host:port")
+        t.add_argument("--no-figures", action="store_true", help="skip the trade figures")
+        t.add_argument("--quiet", action="store_true", help="no progress bar and no report")
+
     sub.add_parser("schema", help="print the JSON Schema of a study file", epilog=_EPILOG,
                    formatter_class=fmt,
                    description="Print the JSON Schema (draft 2020-12) of a study file, for "
@@ -118,6 +138,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             return _cmd_check(args)
         if args.command == "elements":
             return _cmd_elements(args)
+        if args.command in ("sweep", "size"):
+            return _cmd_trade(args)
         if args.command == "schema":
             return _cmd_schema()
     except CovergridError as exc:
@@ -155,6 +177,51 @@ def _verdict_text(v: dict) -> str:
             f"{100 * v['area_fraction_met']:.1f} % of the area meets it)")
 
 
+def _cmd_trade(args: argparse.Namespace) -> int:
+    """``sweep`` and ``size``: exit 0, or 1 when size finds no design meeting the requirement."""
+    from covergrid.config import load_study, parse_study
+
+    study = load_study(args.study)
+    if args.scheduler is not None:
+        data = study.resolved_dict()
+        data["compute"]["scheduler"] = args.scheduler
+        study = parse_study(data, source="--scheduler")
+    block = "sweep" if args.command == "sweep" else "sizing"
+    if getattr(study, block) is None:
+        return _fail(f"{block}: the study file has no {block} block; see the README's study "
+                     "file reference")
+    if args.command == "sweep":
+        from covergrid.sweep import run_sweep
+
+        res = run_sweep(study, args.out, progress=not args.quiet, figures=not args.no_figures)
+        if not args.quiet:
+            met = sum(1 for r in res.rows if r.get("meets") is True)
+            print(f"covergrid: {len(res.rows)} designs ({res.computed} computed, "
+                  f"{len(res.rows) - res.computed} from the store); wrote {len(res.files)} "
+                  f"files to {res.out_dir}")
+            if study.requirement is not None:
+                print(f"{met} of {len(res.rows)} designs meet the requirement")
+        return EXIT_OK
+    from covergrid.sizing import run_sizing
+
+    res = run_sizing(study, args.out, progress=not args.quiet, figures=not args.no_figures)
+    if not args.quiet:
+        print(f"covergrid: wrote {len(res.files)} files to {res.out_dir}")
+        for r in res.results:
+            where = f"{r['altitude_km']:g} km, {r['inclination_deg']:g} deg"
+            if r["feasible"]:
+                loss = f", worst loss {r['worst_loss']}" if r["worst_loss"] else ""
+                print(f"  {where}: {r['pattern']} {r['total']}/{r['planes']}/{r['phasing']} "
+                      f"(achieved {r['achieved']:g}, margin {r['margin']:+g}{loss})")
+            else:
+                print(f"  {where}: none up to {study.sizing.total.max} satellites")
+        s = res.search
+        print(f"  designs: {s['designs_in_space']} in the space, {s['full_evaluated']} "
+              f"evaluated at full resolution, {s['pruned']} pruned coarsely, "
+              f"{s['skipped_by_early_stop']} skipped after the first feasible total")
+    return EXIT_OK if res.best is not None else EXIT_REQUIREMENT_NOT_MET
+
+
 def _cmd_check(args: argparse.Namespace) -> int:
     from covergrid.pipeline import check_resources, estimate, load_study
 
@@ -170,7 +237,7 @@ def _cmd_check(args: argparse.Namespace) -> int:
 
 def _estimate_text(study, est: dict) -> str:
     def gb(n):
-        return "unknown" if n is None else f"{n / 2**30:.2f} GB"
+        return "unknown" if n is None else f"{n / 1e9:.2f} GB"
 
     groups = []
     for g in study.constellation:
