@@ -48,9 +48,15 @@ _OUTPUT_BYTES_PER_CELL = 7 * 8 + 4 * 4 + 8
 _STATE_BYTES_PER_CELL = 3 * 4 + 8 + 2 * 4 + 4 + 3 * 8 + 4
 #: Satellite-position buffer per running task (covergrid.engine._POSITION_BLOCK_BYTES).
 _POSITION_BUFFER_BYTES = 16 * 2**20
-#: Interpreter, numpy, numba, dask and xarray once imported (measured order of magnitude on
-#: the development machine with psutil: about 0.3 GB resident).
-_BASELINE_BYTES = 300 * 2**20
+#: Resident memory of a run besides the per-cell terms: the interpreter with numpy, numba,
+#: dask, xarray and netCDF4 imported (0.29 GB peak for a 2 deg study) plus what computing
+#: and writing adds (about 0.25 GB). Fitted to peak RSS (GNU time -v) of `covergrid run` on
+#: the development machine: 24 satellites, 6 h at 60 s, global grids of 0.25 deg (measured
+#: 0.75 GB, estimated 0.92 GB) and 0.1 deg (measured 2.30 GB, estimated 2.59 GB).
+_BASELINE_BYTES = 550 * 2**20
+#: Copies of the finished Dataset alive at the peak: the band results and the assembled
+#: arrays (2), plus a margin of half a copy for writing and summarising (same fit).
+_OUTPUT_COPIES = 2.5
 
 
 def available_memory_bytes() -> int | None:
@@ -120,9 +126,12 @@ def estimate(study: Study, *, workers: int | None = None) -> dict[str, Any]:
     magnitude figure for planning (eccentric orbits and strongly inclined regional grids
     deviate most).
 
-    The memory estimate adds the interpreter baseline, twice the finished Dataset (dask
-    holds the band results while it assembles the arrays) and, per running task, one
-    band's streaming state, its finished metrics and the position buffer.
+    The memory estimate adds a fixed baseline, 2.5 times the finished Dataset (dask holds
+    the band results while it assembles the arrays, plus a margin for writing) and, per
+    running task, one band's streaming state and the position buffer. Fitted to measured
+    peak resident memory, it errs on the high side by 10-25 % on global grids of 0.25 and
+    0.1 deg (see ``_BASELINE_BYTES``); it does not grow with the span, as the engine
+    streams over time.
     """
     import os
 
@@ -155,14 +164,14 @@ def estimate(study: Study, *, workers: int | None = None) -> dict[str, Any]:
     bands = band_edges(rows, study.compute.chunk_rows, n_sat)
     b_rows = max(b - a for a, b in bands)
     out_bytes = cells * (_OUTPUT_BYTES_PER_CELL + 8 * k)
-    cell_bytes = _STATE_BYTES_PER_CELL + 8 * (k + 1) + _OUTPUT_BYTES_PER_CELL + 8 * k
-    # per task: band state and results, the position buffer, 4 int32 interval arrays per
-    # satellite and row
+    # per running task: the band's streaming state, the position buffer and 4 int32
+    # interval arrays per satellite and row (its finished metrics are counted in out_bytes)
+    cell_bytes = _STATE_BYTES_PER_CELL + 8 * (k + 1)
     per_task = b_rows * cols * cell_bytes + _POSITION_BUFFER_BYTES + 4 * 4 * n_sat * b_rows
     running = min(workers, len(bands))
-    memory = _BASELINE_BYTES + 2 * out_bytes + running * per_task
+    memory = _BASELINE_BYTES + _OUTPUT_COPIES * out_bytes + running * per_task
     available = available_memory_bytes()
-    limit = (int(study.compute.memory_limit_gb * 2**30) if study.compute.memory_limit_gb
+    limit = (int(study.compute.memory_limit_gb * 1e9) if study.compute.memory_limit_gb
              else available)
     periods = 2 * math.pi * np.sqrt(np.asarray(elements.a_km) ** 3 / MU_EARTH_KM3_S2)
     return {
@@ -211,7 +220,7 @@ def check_resources(study: Study, est: dict[str, Any] | None = None) -> dict[str
 
 
 def _gb(n: float) -> str:
-    return f"{n / 2**30:.2f} GB"
+    return f"{n / 1e9:.2f} GB"
 
 
 @contextlib.contextmanager
