@@ -288,3 +288,17 @@ def test_scheduler_address_of_an_existing_cluster(tmp_path, capsys):
     with xr.open_dataset(tmp_path / "c" / "tiny-ring" / "coverage.nc") as a, \
             xr.open_dataset(tmp_path / "t" / "tiny-ring" / "coverage.nc") as b:
         xr.testing.assert_identical(a.drop_attrs(), b.drop_attrs())
+
+
+def test_nfold_requirement_uses_its_fold(tmp_path, capsys):
+    # k = 6 means all six in view at once: impossible here, as the two satellites of a plane
+    # are 180 deg apart while one coverage circle at 1200 km and 10 deg spans under 60 deg of
+    # central angle. So any positive 6-fold share fails; nfold_max grows to 6.
+    study = _write(tmp_path, TINY + "requirement: {metric: nfold_fraction, k: 6, "
+                   "at_least: 0.01, area_fraction: 0.5}\n")
+    assert load_study(study).nfold_max == 6
+    assert cli.main(["run", str(study), "--out", str(tmp_path / "o"), "--no-maps",
+                     "--quiet"]) == 1
+    summary = json.loads((tmp_path / "o" / "tiny-ring" / "summary.json").read_text())
+    v = summary["requirement"]
+    assert (v["metric"], v["k"], v["met"], v["achieved"]) == ("nfold_fraction", 6, False, 0.0)
