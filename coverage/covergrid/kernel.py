@@ -85,6 +85,8 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
         "prev_rows": np.zeros((n_sat, 2), np.int32),
         # queued exits of one sample: (row, prev start, prev length, new start, new length)
         "exits": np.zeros((n_sat * n_rows, 5), np.int32),
+        # per satellite: the radius the footprint bound was last computed for, and the bound
+        "bound_cache": np.full((n_sat, 2), -1.0),
         "visits": np.zeros(1, np.int64),
     }
 
@@ -313,7 +315,7 @@ def _apply_difference(a, base, sa, la, sb, lb, n_lon, i, delta, kmax):
 @numba.njit(cache=True, nogil=True)
 def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
             el_min_rad, eta_max_rad, range_max_km, acc, prev_start, prev_len, prev_rows,
-            exits, visits):
+            exits, bound_cache, visits):
     """Advance one latitude band's streaming state over a block of samples.
 
     For each sample, each satellite's rows are visited once: the row's new interval is found,
@@ -333,7 +335,7 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
         Western edge of column 0 and column width [rad]; n_lon columns cover 360 deg.
     el_min_rad, eta_max_rad, range_max_km : float
         Sensor limits; eta_max_rad <= 0 and range_max_km <= 0 mean "no limit".
-    acc, prev_start, prev_len, prev_rows, exits : ndarray
+    acc, prev_start, prev_len, prev_rows, exits, bound_cache : ndarray
         State from :func:`new_state`, updated in place.
     visits : ndarray, (1,)
         Running count of satellite-sample-cell visibilities (for benchmarks), in place.
@@ -368,7 +370,13 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
             rs = math.sqrt(rs2)
             c_lo = 0
             c_hi = 0
-            lam = _central_angle_bound(rs, el_min_rad, eta_max_rad, range_max_km)
+            # the bound depends on the radius only: reuse it while the radius stays put
+            # (circular orbits), to within a metre, which the bound's margin covers many times
+            if abs(rs - bound_cache[s, 0]) > 1e-3:
+                bound_cache[s, 0] = rs
+                bound_cache[s, 1] = _central_angle_bound(rs + 1e-3, el_min_rad, eta_max_rad,
+                                                         range_max_km)
+            lam = bound_cache[s, 1]
             sps = sz / rs
             if lam >= 0.0:
                 psi_s = math.asin(sps)
@@ -444,7 +452,7 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
             float(lon0_rad), float(dlon_rad), int(n_lon),
             float(el_min_rad), float(eta_max_rad), float(range_max_km),
             st["acc"], st["prev_start"], st["prev_len"], st["prev_rows"],
-            st["exits"], st["visits"])
+            st["exits"], st["bound_cache"], st["visits"])
 
 
 def close_band(state: dict[str, np.ndarray], n_steps: int) -> None:
