@@ -45,7 +45,7 @@ Outputs of ``covergrid size`` (:func:`run_sizing`) in ``DIR/<study>/``: ``sizing
 row per altitude and inclination), ``sizing.json`` (``best``, every result, the search
 statistics and the rules above), ``sizing_designs.csv``/``.nc`` (every full-resolution
 evaluation), ``store/`` (per-design records, shared with ``covergrid sweep``) and
-``trades/`` (trade figures).
+``trades/sizing/`` (trade figures).
 """
 
 from __future__ import annotations
@@ -423,7 +423,7 @@ def run_sizing(study, out_dir: str | os.PathLike | None = None, *,
         shown = [_D(d["pattern"], int(d["total"]), int(d["planes"]), int(d["phasing"]),
                     float(d["altitude_km"]), float(d["inclination_deg"]),
                     float(d["min_elevation_deg"])) for d in intact]
-        files += trade_figures(intact, study, folder / "trades",
+        files += trade_figures(intact, study, folder / "trades" / "sizing",
                                caption=_caption(study, shown, "Sizing search (designs "
                                                 "evaluated at full resolution)"))
     res.out_dir, res.files = folder, files

@@ -17,7 +17,7 @@ running.
 
 Outputs of ``covergrid sweep`` (:func:`run_sweep`) in ``DIR/<study>/``: ``sweep.csv`` and
 ``sweep.nc`` (one row / one point on dimension ``design`` per design), ``store/`` (the
-per-design records) and ``trades/`` (trade figures, PNG 200 dpi and PDF).
+per-design records) and ``trades/sweep/`` (trade figures, PNG 200 dpi and PDF).
 """
 
 from __future__ import annotations
@@ -662,7 +662,11 @@ def _caption(study, designs: Sequence[Design], what: str) -> str:
         sense = "at most" if r.at_most is not None else "at least"
         value = r.at_most if r.at_most is not None else r.at_least
         k = f" (k = {r.k})" if r.k is not None else ""
-        text += (f" Requirement: {r.metric}{k} {sense} {value:g} over "
+        from covergrid.metrics import METRICS
+
+        units = METRICS[r.metric].units
+        value_text = f"{value:g}" + (f" {units}" if units not in ("", "1") else "")
+        text += (f" Requirement: {r.metric}{k} {sense} {value_text} over "
                  f"{100 * r.area_fraction:g} % of the area.")
     return text
 
@@ -709,7 +713,7 @@ def run_sweep(study, out_dir: str | os.PathLike | None = None, *, scheduler: str
     files = write_table(rows, study, folder, "sweep")
     files.append(io.write_text(study.dump_resolved_yaml(), folder / "study.resolved.yaml"))
     if figures:
-        files += trade_figures(rows, study, folder / "trades",
+        files += trade_figures(rows, study, folder / "trades" / "sweep",
                                caption=_caption(study, designs, "Sweep"))
     return SweepResult(rows, computed, folder, files)
 
