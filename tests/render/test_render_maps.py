@@ -210,3 +210,25 @@ def test_design_caption_errors():
         maps.design_caption({"altitude": 500})
     with pytest.raises(CovergridError, match="total, planes and phasing go together"):
         maps.design_caption({"total": 24, "planes": 3})
+
+
+def test_outlying_durations_clip_the_colour_scale_with_an_arrow():
+    """Never-seen cells (gap = span) must not flatten the rest of a gap map: the scale stops at
+    the 98th percentile of the cells and the colour bar gets a 'more than' arrow."""
+    ds = make_dataset(10.0, max_gap_scale_s=3600.0)
+    gap = ds["max_gap"].values.copy()
+    gap[0, :6] = 50 * float(np.nanmax(gap))  # a few outliers (under 2 % of the cells)
+    ds["max_gap"] = (ds["max_gap"].dims, gap, ds["max_gap"].attrs)
+    mesh = maps.plot_metric_map(ds, "max_gap")
+    try:
+        factor = style.display_unit("max_gap", "s", gap).factor
+        top = np.percentile(gap[np.isfinite(gap)], 98.0) * factor
+        assert mesh.norm.vmax == pytest.approx(top, rel=1e-12)
+        assert mesh.colorbar.extend == "max"
+    finally:
+        plt.close(mesh.axes.figure)
+    plain = maps.plot_metric_map(make_dataset(10.0, max_gap_scale_s=3600.0), "max_gap")
+    try:
+        assert plain.colorbar.extend == "neither"
+    finally:
+        plt.close(plain.axes.figure)

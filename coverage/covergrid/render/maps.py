@@ -259,7 +259,7 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
         _prepare_axes(ax, name)
 
         colormap = style.colormap_for(metric, units, cmap=cmap)
-        norm, ticks = _norm_for(metric, units, shown)
+        norm, ticks, extend = _norm_for(metric, units, shown)
         mesh = ax.pcolormesh(lon_edges, lat_edges, shown, transform=ccrs.PlateCarree(),
                              cmap=colormap, norm=norm, shading="flat", edgecolors="face",
                              linewidth=0, zorder=1,
@@ -270,9 +270,9 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
             box = ax.get_position()
             cax = fig.add_axes((min(box.x1 + 0.03, 0.86), box.y0 + 0.1 * box.height, 0.022,
                                 0.8 * box.height))
-            cbar = fig.colorbar(mesh, cax=cax, ticks=ticks)
+            cbar = fig.colorbar(mesh, cax=cax, ticks=ticks, extend=extend)
         else:
-            cbar = fig.colorbar(mesh, ax=ax, shrink=0.8, ticks=ticks)
+            cbar = fig.colorbar(mesh, ax=ax, shrink=0.8, ticks=ticks, extend=extend)
         cbar.set_label(style.metric_label(metric, da.attrs, unit, k=fold))
         cbar.outline.set_linewidth(0.5)
         if cbar.solids is not None:  # matplotlib rasterises long colour bars; keep it vector
@@ -292,21 +292,39 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
 _MAX_DISCRETE_LEVELS = 16
 
 
+# A duration map whose largest values are outliers (e.g. never-seen polar cells with a gap
+# equal to the span) is scaled to this percentile of the cells, with an arrow on the colour
+# bar for the cells above it, so the structure elsewhere stays readable.
+_OUTLIER_PERCENTILE = 98.0
+_OUTLIER_RATIO = 1.5
+
+
 def _norm_for(metric, units, shown):
-    """Continuous normalisation, or one colour per integer for small counts."""
+    """Colour normalisation, ticks and colour-bar extension for a field.
+
+    One colour per integer for small counts; otherwise continuous, with the top clipped to the
+    98th percentile (and ``extend="max"``) when the maximum exceeds 1.5 times it for a
+    duration metric.
+    """
     import matplotlib.colors as mcolors
 
     data = shown.compressed()
     if data.size == 0:
-        return mcolors.Normalize(vmin=0.0, vmax=1.0), None
+        return mcolors.Normalize(vmin=0.0, vmax=1.0), None, "neither"
     lo, hi = float(data.min()), float(data.max())
-    integer = style.metric_kind(metric, units) == "count" and np.all(data == np.round(data))
+    kind = style.metric_kind(metric, units)
+    integer = kind == "count" and np.all(data == np.round(data))
     if integer and hi - lo + 1 <= _MAX_DISCRETE_LEVELS:
         levels = np.arange(lo, hi + 1)
-        return mcolors.BoundaryNorm(np.append(levels, hi + 1) - 0.5, ncolors=256), levels
+        return (mcolors.BoundaryNorm(np.append(levels, hi + 1) - 0.5, ncolors=256), levels,
+                "neither")
     if hi == lo:  # a uniform field: centre it in the colour range
-        return mcolors.Normalize(vmin=lo - 0.5, vmax=hi + 0.5), None
-    return mcolors.Normalize(vmin=lo, vmax=hi), None
+        return mcolors.Normalize(vmin=lo - 0.5, vmax=hi + 0.5), None, "neither"
+    if kind == "duration":
+        top = float(np.percentile(data, _OUTLIER_PERCENTILE))
+        if top > lo and hi > _OUTLIER_RATIO * top:
+            return mcolors.Normalize(vmin=lo, vmax=top), None, "max"
+    return mcolors.Normalize(vmin=lo, vmax=hi), None, "neither"
 
 
 def _map_jobs(ds, metrics: Iterable[str], k):
