@@ -199,3 +199,19 @@ def test_size_command_writes_outputs_and_exit_status(tmp_path, capsys):
     assert main(["size", str(path), "--out", str(tmp_path / "none")]) == 1
     assert "none up to 3 satellites" in capsys.readouterr().out
     assert json.loads((tmp_path / "none" / "robust" / "sizing.json").read_text())["best"] is None
+
+
+@pytest.mark.parametrize("name", ["trade_sweep_polar_relay.yaml",
+                                  "trade_size_coastal_watch.yaml"])
+def test_example_trade_studies_are_valid(name):
+    from pathlib import Path
+
+    from covergrid.config import load_study
+    from covergrid.sweep import sweep_designs
+
+    study = load_study(Path(__file__).resolve().parents[1] / "configs" / name)
+    if study.sweep is not None:
+        assert len(sweep_designs(study)) > 1
+    if study.sizing is not None:
+        assert study.requirement is not None
+        sizing.coarse_context(study)  # the coarse block fits the grid and span

@@ -26,6 +26,7 @@ from pydantic import (
     ConfigDict,
     Field,
     ValidationError,
+    WithJsonSchema,
     field_validator,
     model_validator,
 )
@@ -487,11 +488,29 @@ def _choice_axis(value: Any) -> Any:
     return _axis(value, integer=True)
 
 
-PositiveAxis = Annotated[list[Annotated[float, Field(gt=0.0)]], Field(min_length=1)]
-InclinationAxis = Annotated[list[Inclination], Field(min_length=1)]
-CountAxis = Annotated[list[Annotated[int, Field(ge=1, le=100000)]], Field(min_length=1)]
-PhasingAxis = Annotated[list[Annotated[int, Field(ge=0, le=100000)]], Field(min_length=1)]
-ElevationAxis = Annotated[list[Annotated[float, Field(ge=0.0, lt=90.0)]], Field(min_length=1)]
+def _axis_schema(kind: str, **limits: float) -> WithJsonSchema:
+    """JSON Schema of what a sweep axis accepts: a value, a list or {from, to, step}."""
+    item = {"type": kind, **limits}
+    bound = {"type": kind}
+    return WithJsonSchema({"anyOf": [
+        item,
+        {"type": "array", "items": item, "minItems": 1},
+        {"type": "object", "additionalProperties": False, "required": ["from", "to", "step"],
+         "properties": {"from": bound, "to": bound, "step": {"type": kind,
+                                                             "exclusiveMinimum": 0}}},
+    ]}, mode="validation")
+
+
+PositiveAxis = Annotated[list[Annotated[float, Field(gt=0.0)]], Field(min_length=1),
+                         _axis_schema("number", exclusiveMinimum=0)]
+InclinationAxis = Annotated[list[Inclination], Field(min_length=1),
+                            _axis_schema("number", minimum=0, maximum=180)]
+CountAxis = Annotated[list[Annotated[int, Field(ge=1, le=100000)]], Field(min_length=1),
+                      _axis_schema("integer", minimum=1, maximum=100000)]
+PhasingAxis = Annotated[list[Annotated[int, Field(ge=0, le=100000)]], Field(min_length=1),
+                        _axis_schema("integer", minimum=0, maximum=100000)]
+ElevationAxis = Annotated[list[Annotated[float, Field(ge=0.0, lt=90.0)]], Field(min_length=1),
+                          _axis_schema("number", minimum=0, exclusiveMaximum=90)]
 
 
 class SweepSpec(_Model):
