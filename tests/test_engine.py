@@ -177,4 +177,4 @@ def test_band_edges_cover_all_rows_once():
     for n_lat, chunk in ((90, None), (90, 7), (1, None), (5, 100)):
         b = band_edges(n_lat, chunk)
         assert b[0][0] == 0 and b[-1][1] == n_lat
-        assert all(x[1] == y[0] for x, y in zip(b[:-1], b[1:]))
+        assert all(x[1] == y[0] for x, y in zip(b[:-1], b[1:], strict=True))

@@ -14,7 +14,8 @@ WGS84_INV_F = 298.257223563  # inverse flattening, NIMA TR8350.2 Table 3.1
 WGS84_F = 1.0 / WGS84_INV_F
 WGS84_B_KM = WGS84_A_KM * (1.0 - WGS84_F)  # semi-minor axis (derived)
 WGS84_E2 = WGS84_F * (2.0 - WGS84_F)  # first eccentricity squared (derived)
-MU_EARTH_KM3_S2 = 398600.4418  # GM incl. atmosphere, NIMA TR8350.2 Table 3.1 (3.986004418e14 m^3/s^2)
+# GM including the atmosphere, 3.986004418e14 m^3/s^2, NIMA TR8350.2 Table 3.1
+MU_EARTH_KM3_S2 = 398600.4418
 OMEGA_EARTH_RAD_S = 7.292115e-5  # mean angular velocity, NIMA TR8350.2 Table 3.1
 
 # Equatorial radius used with J2 (EGM96 reference radius equals the WGS 84 a).

@@ -118,7 +118,7 @@ def band_edges(n_lat: int, chunk_rows: int | None, n_sat: int = 1) -> list[tuple
 def _band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
                grid_spec: GridSpec, rows: tuple[int, int], sensor: SensorSpec,
                nfold_max: int) -> np.ndarray:
-    """Metrics of the cells of rows [r0, r1): propagate block by block, stream through the kernel."""
+    """Metrics of the cells of rows [r0, r1): propagate block by block, stream the kernel."""
     grid = Grid(grid_spec)
     r0, r1 = rows
     geo = {k: np.ascontiguousarray(v[r0:r1]) for k, v in grid.row_geometry.items()}
@@ -248,9 +248,9 @@ def compute_coverage(
         # run the band tasks and assemble with numpy: no dask-array graph to optimise
         stack = np.concatenate(_compute_tasks(tasks, scheduler, progress), axis=1)
     else:
-        stack = da.concatenate([da.from_delayed(t, shape=(depth, b[1] - b[0], n_lon),
-                                                dtype=np.float64) for t, b in zip(tasks, bands)],
-                               axis=1)
+        parts = [da.from_delayed(t, shape=(depth, b[1] - b[0], n_lon), dtype=np.float64)
+                 for t, b in zip(tasks, bands, strict=True)]
+        stack = da.concatenate(parts, axis=1)
     data: dict[str, Any] = {}
     for idx, name in enumerate(_PLANAR):
         arr = stack[idx]

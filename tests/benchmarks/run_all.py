@@ -17,14 +17,14 @@ ROOT = HERE.parents[1]
 
 BENCHES = {
     "propagation": [sys.executable, "-c",
-                    "import json, sys; sys.path.insert(0, %r); import bench_propagation as b; "
-                    "print(json.dumps(b.run()))" % str(HERE)],
+                    f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
+                    "import bench_propagation as b; print(json.dumps(b.run()))"],
     "w1": [sys.executable, str(HERE / "bench_coverage.py"), "w1"],
     "w2": [sys.executable, str(HERE / "bench_coverage.py"), "w2"],
     "w3": [sys.executable, str(HERE / "bench_coverage.py"), "w3"],
     "sweep": [sys.executable, "-c",
-              "import json, sys; sys.path.insert(0, %r); import bench_sweep as b; "
-              "print(json.dumps(b.run()))" % str(HERE)],
+              f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
+              "import bench_sweep as b; print(json.dumps(b.run()))"],
 }
 
 
