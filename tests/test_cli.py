@@ -177,6 +177,7 @@ def test_run_end_to_end_writes_every_output(tmp_path, capsys):
     summary = json.loads((folder / "summary.json").read_text())
     assert summary["study"] == "tiny-ring" and summary["requirement"]["met"] is True
     assert summary["requirement"]["margin"] > 0
+    assert "secular J2" in summary["model_limits"]  # every report states the model's limits
     header = (folder / "summary.csv").read_text().splitlines()[0]
     assert header.startswith("metric,k,units,scope,lat_min_deg,lat_max_deg")
     # The resolved study is itself a valid study that describes the same run.

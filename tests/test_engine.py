@@ -178,3 +178,13 @@ def test_band_edges_cover_all_rows_once():
         b = band_edges(n_lat, chunk)
         assert b[0][0] == 0 and b[-1][1] == n_lat
         assert all(x[1] == y[0] for x, y in zip(b[:-1], b[1:], strict=True))
+
+
+def test_every_dataset_states_the_model_limits():
+    from covergrid.metrics import MODEL_LIMITS
+
+    el, grid, sensor = _small()
+    ds = compute_coverage(el, EPOCH, 3600.0, 600.0, grid, sensor)
+    assert ds.attrs["comment"] == MODEL_LIMITS
+    for phrase in ("secular J2", "no drag", "not for operations", "higher-fidelity"):
+        assert phrase in MODEL_LIMITS

@@ -25,7 +25,7 @@ from . import __version__, kernel
 from .earth.time import epoch_to_iso, gmst_rad, parse_epoch
 from .errors import CovergridError
 from .grid import Grid, GridSpec
-from .metrics import INTEGER_METRICS, METRICS, finalise
+from .metrics import INTEGER_METRICS, METRICS, MODEL_LIMITS, finalise
 from .orbits import j2
 
 __all__ = ["GridSpec", "SensorSpec", "compute_coverage", "band_edges", "n_samples"]
@@ -278,8 +278,7 @@ def compute_coverage(
                   "footprint-indexed streaming coverage kernel",
         "history": f"created by covergrid {__version__}",
         "references": METRICS["max_gap"].source,
-        "comment": "Design-study result: secular J2 on mean elements, no drag, sample-and-hold "
-                   "visibility at the stated step. Not for operations or safety-of-life use.",
+        "comment": MODEL_LIMITS,
         "covergrid_epoch": epoch_to_iso(epoch),
         "covergrid_duration_s": float(n_steps * step_s),
         "covergrid_step_s": float(step_s),

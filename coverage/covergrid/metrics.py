@@ -36,6 +36,17 @@ import numpy as np
 
 SMAD = "Wertz and Larson, Space Mission Analysis and Design, 3rd ed., sec. 7.2"
 
+#: The model's limits, written into every output (netCDF comment, summary.json) and shown in
+#: every figure's footer in short.
+MODEL_LIMITS = (
+    "Design-study result, not for operations or safety-of-life use. Model: mean elements with "
+    "secular J2 only (no drag, no short-period or higher-order gravity terms, no third bodies), "
+    "sidereal-angle-only Earth rotation, geometric visibility of cell centres on the WGS 84 "
+    "ellipsoid (no terrain, refraction or pointing), sample-and-hold at the stated step "
+    "(durations good to one step). Verify final designs with higher-fidelity analysis and by "
+    "licensed, qualified practice."
+)
+
 
 @dataclass(frozen=True)
 class MetricInfo:

@@ -281,7 +281,10 @@ def summarise_study(study: Study, ds) -> dict[str, Any]:
         req = {"metric": r.metric, "at_most": r.at_most, "at_least": r.at_least,
                "area_fraction": r.area_fraction, "k": r.k}
     out = summarise(ds, band_width_deg=study.output.band_width_deg, requirement=req)
-    out = {"study": study.study, "covergrid_version": __version__, **out}
+    from covergrid.metrics import MODEL_LIMITS
+
+    out = {"study": study.study, "covergrid_version": __version__, "model_limits": MODEL_LIMITS,
+           **out}
     return out
 
 
