@@ -14,6 +14,7 @@ import errno
 import json
 import math
 import os
+import shutil
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
@@ -272,8 +273,27 @@ def netcdf_encoding(ds, complevel: int = 4) -> dict[str, dict[str, Any]]:
 def write_netcdf(ds, path: str | os.PathLike) -> Path:
     """Write a Dataset as compressed netCDF-4 atomically (see :func:`netcdf_encoding`)."""
     with atomic_path(path) as tmp:
-        ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=netcdf_encoding(ds))
+        try:
+            ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=netcdf_encoding(ds))
+        except RuntimeError as exc:
+            raise _netcdf_write_error(exc, tmp, ds.nbytes) from None
     return Path(path)
+
+
+def _netcdf_write_error(exc: RuntimeError, tmp: Path, data_bytes: int) -> OSError:
+    """The OSError behind a failed netCDF write, for :func:`atomic_path` to explain.
+
+    netCDF-C and HDF5 report a failed write (a full disk among others) as a RuntimeError
+    ("NetCDF: HDF error") without an errno. If the folder has less free space than the
+    uncompressed data, the disk filling up is taken to be the cause.
+    """
+    try:
+        free = shutil.disk_usage(tmp.parent).free
+    except OSError:
+        free = None
+    if free is not None and free < max(int(data_bytes), 2**20):
+        return OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+    return OSError(errno.EIO, f"the netCDF library could not write the file ({exc})")
 
 
 def save_figure(fig, path: str | os.PathLike, **savefig_kw: Any) -> Path:
