@@ -172,10 +172,11 @@ def _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cl, sl, sin2_el, cos2_e
 
 @numba.njit(cache=True, nogil=True, inline="always")
 def _extent(step, m, cap, jc, sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon, sin_lon,
-            n_lon, sin2_el, cos2_eta, range2):
+            n_lon, sin2_el, cos2_eta, range2, known0):
     """Largest m in [0, cap] with column jc + step*m visible, searched from the estimate m.
 
-    Column jc (m = 0) is known to be visible and visibility falls monotonically with m.
+    Visibility falls monotonically with m. With ``known0`` column jc (m = 0) is known to be
+    visible and is not tested; otherwise -1 is returned when it is not visible.
     """
     if m < 0:
         m = 0
@@ -192,7 +193,8 @@ def _extent(step, m, cap, jc, sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lo
             m += 1
         return m
     m -= 1
-    while m > 0:
+    stop = 0 if known0 else -1
+    while m > stop:
         j = (jc + step * m) % n_lon
         if _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j], sin2_el,
                     cos2_eta, range2):
@@ -207,19 +209,20 @@ def _row_interval(sx, sy, sz, rs2, lon_s, sin_psi_s, cos_psi_s, cos_lam, rho, zc
                   cos2_eta, range2):
     """Visible columns of one row as (start, length), wrapping modulo n_lon; length 0: none."""
     jc = int(math.floor((lon_s - lon0) / dlon)) % n_lon
-    if not _visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[jc], sin_lon[jc],
-                    sin2_el, cos2_eta, range2):
-        return 0, 0
     # spherical estimate of the half-width (law of cosines on the sphere)
     den = cos_psi * cos_psi_s
     cw = (cos_lam - sin_psi * sin_psi_s) / den if den > 1e-12 else -2.0
     w = math.pi if cw <= -1.0 else math.acos(min(cw, 1.0))
     off = lon0 + (jc + 0.5) * dlon - lon_s  # centre of jc relative to the satellite
     cap = (n_lon - 1) // 2
+    # column jc holds the satellite's longitude, so if any column is visible it is; the
+    # right-hand search finds out (without a separate test when the estimate is visible)
     m_r = _extent(1, int(math.floor((w - off) / dlon)), cap, jc, sx, sy, sz, rs2, rho, zc,
-                  sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2)
+                  sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2, False)
+    if m_r < 0:
+        return 0, 0
     m_l = _extent(-1, int(math.floor((w + off) / dlon)), cap, jc, sx, sy, sz, rs2, rho, zc,
-                  sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2)
+                  sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2, True)
     if m_r == cap or m_l == cap:
         # the footprint reaches round the row: the cells left near the far side are tested
         # one by one
