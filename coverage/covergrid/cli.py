@@ -197,29 +197,30 @@ def _cmd_trade(args: argparse.Namespace) -> int:
         if not args.quiet:
             met = sum(1 for r in res.rows if r.get("meets") is True)
             print(f"covergrid: {len(res.rows)} designs ({res.computed} computed, "
-                  f"{len(res.rows) - res.computed} from the store); wrote {len(res.files)} "
+                  f"{len(res.rows) - res.computed} from the store); wrote {len(res.files or [])} "
                   f"files to {res.out_dir}")
             if study.requirement is not None:
                 print(f"{met} of {len(res.rows)} designs meet the requirement")
         return EXIT_OK
     from covergrid.sizing import run_sizing
 
-    res = run_sizing(study, args.out, progress=not args.quiet, figures=not args.no_figures)
+    sized = run_sizing(study, args.out, progress=not args.quiet, figures=not args.no_figures)
+    sizing_max = study.sizing.total.max if study.sizing is not None else None
     if not args.quiet:
-        print(f"covergrid: wrote {len(res.files)} files to {res.out_dir}")
-        for r in res.results:
+        print(f"covergrid: wrote {len(sized.files or [])} files to {sized.out_dir}")
+        for r in sized.results:
             where = f"{r['altitude_km']:g} km, {r['inclination_deg']:g} deg"
             if r["feasible"]:
                 loss = f", worst loss {r['worst_loss']}" if r["worst_loss"] else ""
                 print(f"  {where}: {r['pattern']} {r['total']}/{r['planes']}/{r['phasing']} "
                       f"(achieved {r['achieved']:g}, margin {r['margin']:+g}{loss})")
             else:
-                print(f"  {where}: none up to {study.sizing.total.max} satellites")
-        s = res.search
+                print(f"  {where}: none up to {sizing_max} satellites")
+        s = sized.search
         print(f"  designs: {s['designs_in_space']} in the space, {s['full_evaluated']} "
               f"evaluated at full resolution, {s['pruned']} pruned coarsely, "
               f"{s['skipped_by_early_stop']} skipped after the first feasible total")
-    return EXIT_OK if res.best is not None else EXIT_REQUIREMENT_NOT_MET
+    return EXIT_OK if sized.best is not None else EXIT_REQUIREMENT_NOT_MET
 
 
 def _cmd_check(args: argparse.Namespace) -> int:

@@ -441,9 +441,9 @@ def _axis(value: Any, *, integer: bool) -> Any:
     if isinstance(value, list):
         if not value:
             raise _Problems([((), "must hold at least one value", value)])
-        bad = [(i,) for i, v in enumerate(value) if not number(v)]
-        if bad:
-            raise _Problems([(b, f"must be a {kind}", value[b[0]]) for b in bad])
+        not_numbers = [i for i, v in enumerate(value) if not number(v)]
+        if not_numbers:
+            raise _Problems([((i,), f"must be a {kind}", value[i]) for i in not_numbers])
         return value
     if isinstance(value, dict):
         keys = {"from", "to", "step"}
@@ -452,7 +452,8 @@ def _axis(value: Any, *, integer: bool) -> Any:
         if extra or missing:
             what = (f"unknown key {extra[0]!r}" if extra else f"missing key {missing[0]!r}")
             raise _Problems([((), f"a range is {{from, to, step}}; {what}", value)])
-        bad = [((k,), f"must be a {kind}", value[k]) for k in ("from", "to", "step")
+        bad: list[tuple[tuple, str, Any]] = [
+            ((k,), f"must be a {kind}", value[k]) for k in ("from", "to", "step")
                if not number(value[k]) or not math.isfinite(value[k])]
         if bad:
             raise _Problems(bad)

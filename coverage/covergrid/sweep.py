@@ -232,7 +232,7 @@ def _template(study) -> tuple[Any, Any]:
     return None, None
 
 
-def _template_extras(template) -> dict[str, float]:
+def _template_extras(template) -> dict[str, Any]:
     if template is None:
         return {}
     return {"eccentricity": template.eccentricity, "raan_deg": template.raan_deg,
