@@ -1,7 +1,7 @@
 """Run every benchmark, each in its own process (so peak memory is per benchmark), and print
 one table. Figures also go to outputs/bench/results.json. Used by `make bench`.
 
-    python tests/benchmarks/run_all.py [name ...]     names: propagation w1 w2 w3 sweep
+    python tests/benchmarks/run_all.py [name ...]     names: propagation w1 w2 w3 cluster sweep
 """
 
 from __future__ import annotations
@@ -22,6 +22,9 @@ BENCHES = {
     "w1": [sys.executable, str(HERE / "bench_coverage.py"), "w1"],
     "w2": [sys.executable, str(HERE / "bench_coverage.py"), "w2"],
     "w3": [sys.executable, str(HERE / "bench_coverage.py"), "w3"],
+    "cluster": [sys.executable, "-c",
+                f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
+                "import bench_cluster as b; print(json.dumps(b.run()))"],
     "sweep": [sys.executable, "-c",
               f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
               "import bench_sweep as b; print(json.dumps(b.run()))"],
