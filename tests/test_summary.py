@@ -182,3 +182,23 @@ def test_summarise_lists_every_metric_and_fold():
     rows = summary_rows(s)
     assert all(set(r) == set(CSV_COLUMNS) for r in rows)
     assert len(rows) == len(s["metrics"]) * 7  # one global row and six bands each
+
+
+def test_bands_narrower_than_a_cell_report_the_cells_they_hold():
+    # 7 deg bands on a 10 deg grid: the band from -90 holds the row -90..-80 (centre -85), so it
+    # must say -90..-80, and its zone area must match those latitudes.
+    ds = contract_dataset(10.0)
+    bands = band_statistics(ds["max_gap"], ds["cell_area"], 7.0, ds["lat_bnds"].values)
+    assert (bands[0]["lat_min_deg"], bands[0]["lat_max_deg"]) == (-90.0, -80.0)
+    for b in bands:
+        zone = 2 * math.pi * SPHERE_RADIUS_M**2 * (
+            math.sin(math.radians(b["lat_max_deg"])) - math.sin(math.radians(b["lat_min_deg"])))
+        assert b["area_m2"] == pytest.approx(zone, rel=SUM_ROUNDING)
+
+
+def test_mean_of_a_uniform_field_lies_within_its_min_and_max():
+    # On a 5 deg grid the plain weighted sum of 7200 s everywhere comes out 7199.999999999999.
+    ds = contract_dataset(5.0)
+    x = _lat_field(ds, lambda lat: np.full_like(lat, 7200.0))
+    stats = area_statistics(x, ds["cell_area"].values)
+    assert stats["min"] <= stats["mean"] <= stats["max"]

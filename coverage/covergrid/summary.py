@@ -128,9 +128,12 @@ def area_statistics(values, area) -> dict[str, float]:
     out: dict[str, float] = {"area_m2": total,
                              "valid_area_fraction": w_valid / total if total > 0 else math.nan}
     if w_valid > 0:
-        out["mean"] = float(np.sum(w[valid] * x[valid]) / w_valid)
         out["min"] = float(x[valid].min())
         out["max"] = float(x[valid].max())
+        # Rounding in the weighted sum can put the mean of a uniform field a few ulp outside
+        # [min, max] (7199.999999999999 for a field of 7200); keep it inside.
+        out["mean"] = min(max(float(np.sum(w[valid] * x[valid]) / w_valid), out["min"]),
+                          out["max"])
     else:
         out["mean"] = out["min"] = out["max"] = math.nan
     quantiles = weighted_quantile(x, w, [p / 100.0 for p in PERCENTILES])
@@ -160,7 +163,9 @@ def band_statistics(da: xr.DataArray, cell_area: xr.DataArray, band_width_deg: f
         Cell areas on (lat, lon) [m2].
     band_width_deg : float
         Band width; band edges lie on multiples of it counted from -90 deg, clipped to the
-        grid [deg]. A cell belongs to the band holding its centre latitude.
+        grid [deg]. A cell belongs to the band holding its centre latitude; a band's
+        ``lat_min_deg`` and ``lat_max_deg`` are the outer bounds of its cells (the nominal
+        edges when the width is a multiple of the grid resolution).
     lat_bnds : array_like, optional
         Latitude bounds of the rows, (lat, 2); default: half-way between centres [deg].
 
@@ -187,7 +192,10 @@ def band_statistics(da: xr.DataArray, cell_area: xr.DataArray, band_width_deg: f
         rows = which == b
         if not rows.any():
             continue
-        stats = {"lat_min_deg": float(edges[b]), "lat_max_deg": float(edges[b + 1])}
+        # Report the latitudes the band's cells actually span: when the band width is not a
+        # multiple of the grid resolution, a cell reaches past the nominal band edge.
+        stats = {"lat_min_deg": float(np.min(bnds[rows, 0])),
+                 "lat_max_deg": float(np.max(bnds[rows, 1]))}
         stats.update(area_statistics(x[rows], w[rows]))
         out.append(stats)
     return out
