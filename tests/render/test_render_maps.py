@@ -232,3 +232,28 @@ def test_outlying_durations_clip_the_colour_scale_with_an_arrow():
         assert plain.colorbar.extend == "neither"
     finally:
         plt.close(plain.axes.figure)
+
+
+@pytest.mark.parametrize("value", [0.0, 1.0])
+def test_uniform_fraction_uses_the_whole_percent_scale(value):
+    """A fraction that is the same everywhere (e.g. 2-fold coverage with one satellite) is drawn
+    on 0-100 %, not on a bar around the value that reaches negative percent."""
+    ds = make_dataset(10.0)
+    ds["coverage_fraction"] = (ds["coverage_fraction"].dims,
+                               np.full(ds["coverage_fraction"].shape, value),
+                               ds["coverage_fraction"].attrs)
+    mesh = maps.plot_metric_map(ds, "coverage_fraction")
+    try:
+        assert (mesh.norm.vmin, mesh.norm.vmax) == (0.0, 100.0)
+    finally:
+        plt.close(mesh.axes.figure)
+
+
+def test_uniform_duration_scale_stays_non_negative():
+    ds = make_dataset(10.0)
+    ds["max_gap"] = (ds["max_gap"].dims, np.zeros(ds["max_gap"].shape), ds["max_gap"].attrs)
+    mesh = maps.plot_metric_map(ds, "max_gap")
+    try:
+        assert mesh.norm.vmin == 0.0 and mesh.norm.vmax > 0.0
+    finally:
+        plt.close(mesh.axes.figure)

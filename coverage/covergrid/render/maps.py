@@ -318,8 +318,14 @@ def _norm_for(metric, units, shown):
         levels = np.arange(lo, hi + 1)
         return (mcolors.BoundaryNorm(np.append(levels, hi + 1) - 0.5, ncolors=256), levels,
                 "neither")
-    if hi == lo:  # a uniform field: centre it in the colour range
-        return mcolors.Normalize(vmin=lo - 0.5, vmax=hi + 0.5), None, "neither"
+    if hi == lo:
+        if kind == "fraction":
+            # A uniform fraction (e.g. no cell ever 2-fold covered): the full 0-100 % scale, so
+            # the colour reads as the value and the bar shows no impossible negative percent.
+            return mcolors.Normalize(vmin=0.0, vmax=100.0), None, "neither"
+        # Otherwise centre it in the colour range, never below zero for a non-negative field.
+        return (mcolors.Normalize(vmin=max(lo - 0.5, 0.0) if lo >= 0 else lo - 0.5,
+                                  vmax=hi + 0.5), None, "neither")
     if kind == "duration":
         top = float(np.percentile(data, _OUTLIER_PERCENTILE))
         if top > lo and hi > _OUTLIER_RATIO * top:
