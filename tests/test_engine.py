@@ -39,9 +39,16 @@ def test_dataset_layout_and_cf_attributes():
     assert ds.attrs["Conventions"] == "CF-1.8"
     assert ds.attrs["covergrid_study"] == "name: x"
     assert ds.attrs["covergrid_n_steps"] == 90
-    # k = 1 of the n-fold fraction is the coverage fraction
-    xr.testing.assert_allclose(ds.nfold_fraction.sel(k=1, drop=True),
-                               ds.coverage_fraction, rtol=0, atol=0)
+    # k = 1 of the (sampled) n-fold fraction is the coverage fraction of the sampled gaps;
+    # refined gap boundaries move it by less than one step per gap
+    sampled = compute_coverage(el, EPOCH, 3 * 3600.0, 120.0, grid, sensor, nfold_max=3,
+                               refine_transitions=False)
+    xr.testing.assert_allclose(sampled.nfold_fraction.sel(k=1, drop=True),
+                               sampled.coverage_fraction, rtol=0, atol=0)
+    one_step = 120.0 / (3 * 3600.0)
+    assert np.all(np.abs(ds.coverage_fraction - sampled.coverage_fraction).values
+                  <= ds.gap_count.values * one_step + 1e-12)
+    assert ds.attrs["covergrid_refine_transitions"] == 1
     # fractions stay in [0, 1] and the n-fold fractions fall with k
     assert float(ds.coverage_fraction.min()) >= 0 and float(ds.coverage_fraction.max()) <= 1
     assert np.all(np.diff(ds.nfold_fraction.values, axis=0) <= 0)

@@ -56,7 +56,7 @@ def test_kernel_equals_brute_force(case):
     name, grid, sensor, span, step = case
     el = _case_elements(name)
     ds = compute_coverage(el, EPOCH, span, step, grid, sensor, nfold_max=3, chunk_rows=4,
-                          scheduler="synchronous")
+                          scheduler="synchronous", refine_transitions=False)
     lat, lon = cell_centres(grid.resolution_deg, grid.lat_min_deg, grid.lat_max_deg)
     vis = visibility(el, EPOCH, n_samples(span, step), step, lat, lon,
                      sensor.min_elevation_deg, sensor.max_off_nadir_deg, sensor.max_range_km)
@@ -80,7 +80,8 @@ def test_handover_at_one_sample_opens_no_gap():
         raan_rad=np.zeros(2), argp_rad=np.zeros(2), M_rad=np.array([0.0, dm]), ids=("A", "B"))
     grid = GridSpec(5.0)
     sensor = SensorSpec(10.0)
-    ds = compute_coverage(el, EPOCH, 3 * 3600.0, step, grid, sensor, scheduler="synchronous")
+    ds = compute_coverage(el, EPOCH, 3 * 3600.0, step, grid, sensor, scheduler="synchronous",
+                          refine_transitions=False)
     lat, lon = cell_centres(5.0)
     vis = visibility(el, EPOCH, 180, step, lat, lon, 10.0)
     ref = metrics_from_visibility(vis, step)
@@ -106,3 +107,39 @@ def test_never_seen_and_always_seen_cells():
     assert np.all(ds.max_gap.values[seen] == 0.0)
     assert np.all(ds.pass_count.values[seen] == 1)
     assert np.all(ds.mean_pass_duration.values[seen] == span)
+
+
+REFINE_CASES = [
+    ("delta_6_3_1", SensorSpec(10.0)),
+    ("star_polar", SensorSpec(0.0, max_range_km=2500.0)),
+    ("star_polar", SensorSpec(5.0, max_off_nadir_deg=55.0)),
+]
+
+
+@pytest.mark.parametrize("name, sensor", REFINE_CASES, ids=["elevation", "range", "off-nadir"])
+def test_refined_gap_boundaries_match_fine_sampling(name, sensor):
+    """Gap statistics at a 30 s step with refined crossing times agree with a 2 s sampled
+    reference (itself good to one 2 s step) to a few seconds, where the plain 30 s samples
+    are off by up to a whole step. Compared on the cells whose gaps are the same gaps at both
+    steps (equal gap counts): a pass or gap shorter than the coarse step cannot be refined.
+
+    Tolerances: max_gap 5 s = the reference's 2 s step plus 3 s for the parabolic
+    interpolation of the visibility margin over 30 s; the mean response time and the mean
+    gap average several boundaries and must agree to 2.5 s.
+    """
+    el = _case_elements(name)
+    span, grid = 6 * 3600.0, GridSpec(10.0)
+    ref = compute_coverage(el, EPOCH, span, 2.0, grid, sensor, refine_transitions=False)
+    fine = compute_coverage(el, EPOCH, span, 30.0, grid, sensor)
+    coarse = compute_coverage(el, EPOCH, span, 30.0, grid, sensor, refine_transitions=False)
+    same = (fine.gap_count == ref.gap_count).values
+    assert same.mean() > 0.9
+    tolerances = {"max_gap": 5.0, "mean_gap": 2.5, "mean_response_time": 2.5}
+    for m, tol in tolerances.items():
+        refined_err = np.abs(fine[m] - ref[m]).values[same].max()
+        sampled_err = np.abs(coarse[m] - ref[m]).values[same].max()
+        assert refined_err <= tol, (m, refined_err)
+        assert sampled_err > 2 * tol, "the case must show the sampling error it removes"
+    # refinement moves each boundary by less than one step: coverage within one step per gap
+    diff = np.abs(fine.coverage_fraction - coarse.coverage_fraction).values
+    assert np.all(diff <= 2 * fine.gap_count.values * 30.0 / span + 1e-12)

@@ -117,7 +117,7 @@ def band_edges(n_lat: int, chunk_rows: int | None, n_sat: int = 1) -> list[tuple
 
 def _band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
                grid_spec: GridSpec, rows: tuple[int, int], sensor: SensorSpec,
-               nfold_max: int) -> np.ndarray:
+               nfold_max: int, refine: bool = True) -> np.ndarray:
     """Metrics of the cells of rows [r0, r1): propagate block by block, stream the kernel."""
     grid = Grid(grid_spec)
     r0, r1 = rows
@@ -136,7 +136,8 @@ def _band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
         t = (i0 + np.arange(nb)) * step_s
         out = buf if nb == block else np.empty((n_sat, nb, 3))
         pos = j2.propagate_to_ecef(elements, t, theta0_rad, out=out)
-        kernel.run_band(state, pos, i0, geo, lon0, dlon, n_lon, el_min, eta_max, range_max)
+        kernel.run_band(state, pos, i0, geo, lon0, dlon, n_lon, el_min, eta_max, range_max,
+                        refine)
     kernel.close_band(state, n_steps)
     res = finalise(kernel.accumulators(state), n_steps, step_s)
     # one float64 stack per band: (metrics except nfold, rows, lon) + nfold (K, rows, lon) +
@@ -189,6 +190,7 @@ def compute_coverage(
     progress: bool = False,
     attrs: Mapping[str, Any] | None = None,
     compute: bool = True,
+    refine_transitions: bool = True,
 ) -> xr.Dataset:
     """Per-cell coverage metrics of a constellation over a grid.
 
@@ -218,6 +220,11 @@ def compute_coverage(
         Extra global attributes (the pipeline passes the resolved study).
     compute : bool, optional
         If False return the lazy, dask-backed Dataset.
+    refine_transitions : bool, optional
+        Place each gap's start and end at the time the limit was crossed between two samples
+        (linear interpolation of the visibility margin of the satellite concerned) instead of
+        at the sample after it. Affects coverage_fraction and the gap metrics only; see
+        :mod:`covergrid.metrics`. False gives the pure sampled values.
 
     Returns
     -------
@@ -243,7 +250,8 @@ def compute_coverage(
 
     depth = len(_PLANAR) + nfold_max + 1
     tasks = [dask.delayed(_band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid,
-                                                  b, sensor, int(nfold_max)) for b in bands]
+                                                  b, sensor, int(nfold_max),
+                                                  bool(refine_transitions)) for b in bands]
     if compute:
         # run the band tasks and assemble with numpy: no dask-array graph to optimise
         stack = np.concatenate(_compute_tasks(tasks, scheduler, progress), axis=1)
@@ -288,6 +296,7 @@ def compute_coverage(
         "covergrid_max_range_km": float(sens["max_range_km"] or np.nan),
         "covergrid_n_satellites": int(n_sat),
         "covergrid_resolution_deg": float(grid.resolution_deg),
+        "covergrid_refine_transitions": int(bool(refine_transitions)),
     })
     if attrs:
         ds.attrs.update(dict(attrs))

@@ -8,10 +8,22 @@ maps look metrics up here.
 Sampling convention
 -------------------
 A study spans ``T = N * step_s`` seconds, sampled at ``t_i = i * step_s`` for ``i = 0 .. N-1``.
-The visibility found at ``t_i`` holds for ``[t_i, t_i + step_s)`` (sample and hold). All
-durations below are therefore whole multiples of the step; a gap or pass boundary that falls
-between two samples is placed at the later sample, so each duration carries an error of at
-most one step.
+Who is in view is found at each sample and held until the next (sample and hold): counts,
+levels in view, k-fold fractions, passes and pass durations are these sampled values, so a
+pass duration carries an error of up to one step.
+
+Gap boundaries are refined (the default, ``refine_transitions=True``): where a cell's last
+satellite leaves between samples ``t_(i-1)`` and ``t_i``, the gap starts at the crossing time
+found by interpolating that satellite's visibility margin (the smallest normalised margin of
+the elevation, off-nadir and range limits) through its positions at three successive samples
+(a parabola; a secant at the second sample); the gap ends likewise where the first satellite
+comes back (the earliest of several arriving in one step; the latest of the last two leaving). ``coverage_fraction``, ``max_gap``,
+``mean_gap``, ``time_average_gap`` and ``mean_response_time`` use these times, so they carry
+the interpolation error (third order in the step, worse for grazing passes) instead of a
+one-step error. Gaps shorter
+than one step that open and close between two samples are not seen. With
+``refine_transitions=False`` every boundary is placed at the sample (the pure sampled values,
+which the brute-force reference reproduces exactly).
 
 Gaps at the edges of the span
 -----------------------------
@@ -161,7 +173,8 @@ def finalise(acc: dict[str, np.ndarray], n_steps: int, step_s: float) -> dict[st
         Output of :func:`covergrid.kernel.new_state` after the kernel has run and been closed
         out: ``hist`` (n_cell, K+1) samples spent at each in-view level (last bin: K or more),
         ``sum_n`` (n_cell,) satellite-samples in view, ``min_n``, ``max_n``, ``gap_count``,
-        ``sum_gap``, ``sum_gap2`` [samples, samples^2], ``max_gap`` [samples], ``pass_count``.
+        ``sum_gap``, ``sum_gap2`` [samples, samples^2], ``max_gap`` [samples] (fractional when
+        gap boundaries are refined), ``pass_count``.
     n_steps : int
         Number of samples N in the span [unitless].
     step_s : float
@@ -194,7 +207,8 @@ def finalise(acc: dict[str, np.ndarray], n_steps: int, step_s: float) -> dict[st
     at_least = np.cumsum(hist[:, ::-1], axis=1)[:, ::-1]  # at_least[:, m] = samples with >= m
     tag = acc["sum_gap2"] * step_s / n
     return {
-        "coverage_fraction": at_least[:, 1] / n,
+        # uncovered time is the sum of the (refined) gaps; unrefined this is at_least[:, 1] / n
+        "coverage_fraction": (n - acc["sum_gap"]) / n,
         "max_gap": acc["max_gap"] * step_s,
         "mean_gap": mean_gap * step_s,
         "gap_count": gap_count.astype(np.int32),
