@@ -239,8 +239,19 @@ def _scheduler(study: Study, override: str | None) -> Iterator[Any]:
                           processes=True) as cluster, Client(cluster) as client:
             yield client
         return
-    with Client(name, timeout="30s") as client:
+    try:
+        client = Client(name, timeout=f"{_CONNECT_TIMEOUT_S}s")
+    except OSError as exc:  # refused, unreachable or timed out (TimeoutError is an OSError)
+        raise ResourceError(
+            f"cannot reach the dask scheduler ({exc}); start it "
+            "first or check the address (an SSH tunnel or VPN for a remote cluster); got "
+            f"{name!r}", field="compute.scheduler") from None
+    with client:
         yield client
+
+
+#: How long to wait for an existing dask scheduler to answer [s].
+_CONNECT_TIMEOUT_S = 30
 
 
 @dataclass
