@@ -134,7 +134,8 @@ def _band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     for i0 in range(0, n_steps, block):
         nb = min(block, n_steps - i0)
         t = (i0 + np.arange(nb)) * step_s
-        out = buf if nb == block else np.empty((n_sat, nb, 3))
+        # the last, shorter block reuses the front of the same buffer (contiguous view)
+        out = buf if nb == block else buf.reshape(-1)[: n_sat * nb * 3].reshape(n_sat, nb, 3)
         pos = j2.propagate_to_ecef(elements, t, theta0_rad, out=out)
         kernel.run_band(state, pos, i0, geo, lon0, dlon, n_lon, el_min, eta_max, range_max,
                         refine)
