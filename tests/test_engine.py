@@ -39,15 +39,11 @@ def test_dataset_layout_and_cf_attributes():
     assert ds.attrs["Conventions"] == "CF-1.8"
     assert ds.attrs["covergrid_study"] == "name: x"
     assert ds.attrs["covergrid_n_steps"] == 90
-    # k = 1 of the (sampled) n-fold fraction is the coverage fraction of the sampled gaps;
-    # refined gap boundaries move it by less than one step per gap
-    sampled = compute_coverage(el, EPOCH, 3 * 3600.0, 120.0, grid, sensor, nfold_max=3,
-                               refine_transitions=False)
-    xr.testing.assert_allclose(sampled.nfold_fraction.sel(k=1, drop=True),
-                               sampled.coverage_fraction, rtol=0, atol=0)
-    one_step = 120.0 / (3 * 3600.0)
-    assert np.all(np.abs(ds.coverage_fraction - sampled.coverage_fraction).values
-                  <= ds.gap_count.values * one_step + 1e-12)
+    # k = 1 of the n-fold fraction is the coverage fraction, and one satellite in view on
+    # average at least covers the time with one in view (both sampled)
+    xr.testing.assert_allclose(ds.nfold_fraction.sel(k=1, drop=True),
+                               ds.coverage_fraction, rtol=0, atol=0)
+    assert np.all(ds.mean_in_view.values >= ds.coverage_fraction.values)
     assert ds.attrs["covergrid_refine_transitions"] == 1
     # fractions stay in [0, 1] and the n-fold fractions fall with k
     assert float(ds.coverage_fraction.min()) >= 0 and float(ds.coverage_fraction.max()) <= 1
@@ -207,4 +203,15 @@ def test_position_blocks_do_not_change_results(monkeypatch):
     one = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous")
     monkeypatch.setattr(engine, "_POSITION_BLOCK_BYTES", 24 * len(el) * 7)  # 7 samples
     many = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous")
-    xr.testing.assert_identical(many, one)
+    # The propagator advances its angles by recurrence within one call, so positions from
+    # other block boundaries differ in the last bits (~1e-12 relative): sampled values are
+    # identical, refined crossing times agree to far below a millisecond. (Within one study
+    # the blocks depend only on the number of satellites, so schedulers and latitude chunks
+    # still give bit-identical results: see the tests above.)
+    refined = {"max_gap", "mean_gap", "time_average_gap", "mean_response_time"}
+    for name in many.data_vars:
+        if name in refined:
+            np.testing.assert_allclose(many[name], one[name], rtol=1e-9, atol=1e-6,
+                                       err_msg=name)
+        else:
+            xr.testing.assert_identical(many[name], one[name])

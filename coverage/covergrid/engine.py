@@ -224,8 +224,9 @@ def compute_coverage(
     refine_transitions : bool, optional
         Place each gap's start and end at the time the limit was crossed between two samples
         (linear interpolation of the visibility margin of the satellite concerned) instead of
-        at the sample after it. Affects coverage_fraction and the gap metrics only; see
-        :mod:`covergrid.metrics`. False gives the pure sampled values.
+        at the sample after it. Affects max_gap, mean_gap, time_average_gap and
+        mean_response_time only; see :mod:`covergrid.metrics`. False gives the pure sampled
+        values.
 
     Returns
     -------

@@ -8,22 +8,23 @@ maps look metrics up here.
 Sampling convention
 -------------------
 A study spans ``T = N * step_s`` seconds, sampled at ``t_i = i * step_s`` for ``i = 0 .. N-1``.
-Who is in view is found at each sample and held until the next (sample and hold): counts,
-levels in view, k-fold fractions, passes and pass durations are these sampled values, so a
-pass duration carries an error of up to one step.
+Who is in view is found at each sample and held until the next (sample and hold): coverage
+fraction, levels in view, k-fold fractions, passes and pass durations are these sampled
+values (so ``coverage_fraction`` equals ``nfold_fraction`` at k = 1 and never exceeds
+``mean_in_view``), each duration good to one step.
 
-Gap boundaries are refined (the default, ``refine_transitions=True``): where a cell's last
+The gap statistics ``max_gap``, ``mean_gap``, ``time_average_gap`` and ``mean_response_time``
+use refined gap boundaries (the default, ``refine_transitions=True``): where a cell's last
 satellite leaves between samples ``t_(i-1)`` and ``t_i``, the gap starts at the crossing time
 found by interpolating that satellite's visibility margin (the smallest normalised margin of
 the elevation, off-nadir and range limits) through its positions at three successive samples
 (a parabola; a secant at the second sample); the gap ends likewise where the first satellite
-comes back (the earliest of several arriving in one step; the latest of the last two leaving). ``coverage_fraction``, ``max_gap``,
-``mean_gap``, ``time_average_gap`` and ``mean_response_time`` use these times, so they carry
-the interpolation error (third order in the step, worse for grazing passes) instead of a
-one-step error. Gaps shorter
-than one step that open and close between two samples are not seen. With
-``refine_transitions=False`` every boundary is placed at the sample (the pure sampled values,
-which the brute-force reference reproduces exactly).
+comes back (the earliest of several arriving in one step; the latest of the last two
+leaving). They carry the interpolation error (third order in the step, larger for grazing
+passes) instead of a one-step error. A gap is still found from the samples: one that opens
+and closes between two samples is not seen. With ``refine_transitions=False`` every boundary
+is placed at the sample (the pure sampled values, which the brute-force reference in the
+tests reproduces exactly).
 
 Gaps at the edges of the span
 -----------------------------
@@ -207,8 +208,9 @@ def finalise(acc: dict[str, np.ndarray], n_steps: int, step_s: float) -> dict[st
     at_least = np.cumsum(hist[:, ::-1], axis=1)[:, ::-1]  # at_least[:, m] = samples with >= m
     tag = acc["sum_gap2"] * step_s / n
     return {
-        # uncovered time is the sum of the (refined) gaps; unrefined this is at_least[:, 1] / n
-        "coverage_fraction": (n - acc["sum_gap"]) / n,
+        # sampled, like the in-view levels and k-fold fractions, so that coverage_fraction ==
+        # nfold_fraction(k=1) and mean_in_view >= coverage_fraction hold exactly
+        "coverage_fraction": at_least[:, 1] / n,
         "max_gap": acc["max_gap"] * step_s,
         "mean_gap": mean_gap * step_s,
         "gap_count": gap_count.astype(np.int32),
