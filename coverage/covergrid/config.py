@@ -721,9 +721,10 @@ class Study(_Model):
 
     @property
     def nfold_max(self) -> int:
-        """Largest fold K of nfold_fraction computed (4, or the requirement's k if larger)."""
+        """Largest fold K of nfold_fraction computed: 4 (no more than the satellites there
+        are, at least 1), or the requirement's k if larger."""
         k = self.requirement.k if self.requirement is not None and self.requirement.k else 0
-        return max(4, k)
+        return max(min(4, self.n_satellites), k, 1)
 
     def epoch_datetime64(self):
         """The epoch as numpy datetime64[ns] (UTC)."""

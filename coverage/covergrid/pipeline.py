@@ -342,7 +342,9 @@ def design_caption_for(study: Study) -> str:
                     altitude_km=t.a_km - WGS84_A_KM, inclination_deg=t.inclination_deg)
     text = design_caption(info)
     if not (len(study.constellation) == 1 and walkers):
-        text = f"{study.n_satellites} satellites in {len(study.constellation)} group(s). " + text
+        n, g = study.n_satellites, len(study.constellation)
+        text = (f"{n} satellite{'s' if n != 1 else ''} in {g} group{'s' if g != 1 else ''}. "
+                + text)
     return text
 
 
@@ -368,9 +370,13 @@ def _write_figures(study: Study, ds, folder: Path) -> list[Path]:
     elements = study.to_elements()
     period_s = float(np.max(2 * math.pi * np.sqrt(np.asarray(elements.a_km) ** 3
                                                    / MU_EARTH_KM3_S2)))
-    t_s = np.linspace(0.0, min(period_s, study.duration_s), _TRACK_SAMPLES)
+    shown_s = min(period_s, study.duration_s)
+    t_s = np.linspace(0.0, shown_s, _TRACK_SAMPLES)
     lat, lon = ground_track(elements, study.epoch_datetime64(), t_s)
-    files += save_ground_tracks(lat, lon, folder, caption=caption, ids=elements.ids,
+    title = (f"Ground tracks over the first {shown_s / 60:.0f} min"
+             + (" (one orbit)" if shown_s < study.duration_s else ""))
+    files += save_ground_tracks(lat, lon, folder, caption=caption, title=title,
+                                ids=elements.ids,
                                 planes=plane_numbers(elements))
     profile = [m for m in study.maps.metrics if m != "nfold_fraction"][:4] or ["coverage_fraction"]
     files += save_latitude_profile(ds, profile, folder, caption=caption)
