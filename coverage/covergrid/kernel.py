@@ -43,21 +43,20 @@ from .constants import WGS84_A_KM, WGS84_B_KM
 _VERTICAL_DEFLECTION_BOUND_RAD = math.radians(0.2)
 #: Extra central angle added to the candidate bound to absorb rounding [rad].
 _BOUND_MARGIN_RAD = 1e-6
-_BIG = np.int32(2**30)
 
 
-# columns of the per-cell accumulator array (one row of int64 per cell, fields together in
-# memory so that touching a cell is one or two cache lines)
-N_CUR, T_LAST, GAP_START, SUM_N, MIN_N, MAX_N, GAP_COUNT, SUM_GAP, SUM_GAP2, MAX_GAP, \
-    PASS_COUNT, CLOSE_SAMPLE, EXIT_SAMPLE = range(13)
+# Columns of the per-cell state: one row of float64 per cell, all fields together, so that
+# touching a cell reads one or two cache lines, and one array only, because every array
+# passed down the inlined helpers costs reference counting per call. Counts and sample
+# indices are whole numbers held exactly in float64 (below 2**53). The R_ columns hold gap
+# boundaries in (fractional) samples: gap start, sums of gap lengths and of their squares,
+# the longest gap, and the end of a gap closing at the current sample.
+(N_CUR, T_LAST, GAP_START, SUM_N, MIN_N, MAX_N, GAP_COUNT, PASS_COUNT, CLOSE_SAMPLE,
+ EXIT_SAMPLE, R_GAP_START, R_SUM_GAP, R_SUM_GAP2, R_MAX_GAP, R_GAP_END) = range(15)
 #: first column of the level histogram (samples spent at 0, 1, .., K-1 and >= K in view)
-HIST0 = 13
-# columns of the float per-cell array, in (fractional) samples: gap start time, sum of gap
-# lengths, of their squares, the longest gap; the end of a gap closing at this sample (the
-# earliest arrival) and the latest departure at this sample (for a gap opening at it)
-R_GAP_START, R_SUM_GAP, R_SUM_GAP2, R_MAX_GAP, R_GAP_END, R_LAST_EXIT = range(6)
+HIST0 = 15
 _FIELDS = {"sum_n": SUM_N, "min_n": MIN_N, "max_n": MAX_N, "gap_count": GAP_COUNT,
-           "sum_gap": SUM_GAP, "sum_gap2": SUM_GAP2, "max_gap": MAX_GAP,
+           "sum_gap": R_SUM_GAP, "sum_gap2": R_SUM_GAP2, "max_gap": R_MAX_GAP,
            "pass_count": PASS_COUNT}
 
 
@@ -78,17 +77,20 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
     Returns
     -------
     dict of ndarray
-        ``acc`` (n_cells, 11 + K + 1) int64 per-cell accumulators: columns ``N_CUR`` ...
-        ``PASS_COUNT`` of this module, then from ``HIST0`` the samples spent at each level
-        (one row per cell, so that touching a cell reads one or two cache lines),
-        the previous and current interval of every satellite in every row, and ``visits``.
+        ``acc``: rows 0 .. n_cells-1 are the per-cell state (columns ``N_CUR`` ...
+        ``R_GAP_END`` of this module, then from ``HIST0`` the samples spent at each level);
+        the rows after them are one sample's queue of gap-boundary events (cell, satellite,
+        kind), whose count is in the last row. Also the previous interval of every
+        satellite in every row, one sample's queued exits, per-satellite caches, ``visits``.
     """
-    acc = np.zeros((n_cells, HIST0 + nfold_max + 1), np.int64)
-    acc[:, MIN_N] = 2**40
-    acc[:, CLOSE_SAMPLE] = -1
-    acc[:, EXIT_SAMPLE] = -1
+    cap = 4 * n_cells + 1024
+    acc = np.zeros((n_cells + cap + 1, HIST0 + nfold_max + 1))
+    acc[:n_cells, MIN_N] = 2.0**40
+    acc[:n_cells, CLOSE_SAMPLE] = -1.0
+    acc[:n_cells, EXIT_SAMPLE] = -1.0
     return {
         "acc": acc,
+        "n_cells": np.array([n_cells], np.int64),
         "prev_start": np.zeros((n_sat, n_rows), np.int32),
         "prev_len": np.zeros((n_sat, n_rows), np.int32),
         "prev_rows": np.zeros((n_sat, 2), np.int32),
@@ -98,23 +100,15 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
         "bound_cache": np.full((n_sat, 2), -1.0),
         # per satellite: Earth-fixed positions at the two previous samples (crossing times)
         "prev_pos": np.zeros((n_sat, 6)),
-        # per cell: gap start and gap sums in (fractional) samples, from crossing times
-        "accf": np.zeros((n_cells, 6)),
-        # cells whose gap closes at the current sample (closed after all arrivals are known)
-        "closing": np.zeros(n_cells + 1, np.int64),
         "visits": np.zeros(1, np.int64),
     }
 
 
 def accumulators(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     """The closed-out accumulators by name, as :func:`covergrid.metrics.finalise` takes them."""
-    acc = state["acc"]
+    acc = state["acc"][: int(state["n_cells"][0])]
     out = {name: acc[:, col] for name, col in _FIELDS.items()}
     out["hist"] = acc[:, HIST0:]
-    accf = state["accf"]
-    out["sum_gap"] = accf[:, R_SUM_GAP]
-    out["sum_gap2"] = accf[:, R_SUM_GAP2]
-    out["max_gap"] = accf[:, R_MAX_GAP]
     return out
 
 
@@ -285,27 +279,24 @@ def _margin(x, y, z, rho, zc, sin_lat, cos_lat, cl, sl, sin_el, cos_eta, range_m
 
 
 @numba.njit(cache=True, nogil=True)
-def _crossing(g, cl, sl):
+def _crossing(mode, sx, sy, sz, px, py, pz, qx, qy, qz, rho, zc, sin_lat, cos_lat, cl, sl,
+              sin_el, cos_eta, range_max):
     """Fraction of the step, after the previous sample, at which a cell's visibility changed.
 
     The visibility margin of the satellite concerned is evaluated at its positions at the
-    samples i-2, i-1 and i; the crossing is the root in [0, 1] of the parabola through the
-    three values (Lagrange interpolation; the secant through the last two when i-2 does not
-    exist or the parabola has no root there). 1.0 (the sample itself) when refinement is
-    off. ``g`` = (mode, sx, sy, sz, px, py, pz, qx, qy, qz, rho, zc, sin_lat, cos_lat,
-    sin_el, cos_eta, range_max) with mode 0 off, 1 secant, 2 parabola, and (p.), (q.) the
-    positions at samples i-1 and i-2. Not inlined (it runs at gap boundaries only and takes
-    no arrays, so a call costs no reference counting): this keeps the compiled kernel small.
+    samples i (s.), i-1 (p.) and i-2 (q.); the crossing is the root in [0, 1] of the parabola
+    through the three values (Lagrange interpolation; mode 2), or of the secant through the
+    last two (mode 1, at the second sample; also when the parabola has no root there).
+    Scalars only and not inlined: it runs at gap boundaries only, a call costs no reference
+    counting, and the compiled kernel stays small.
     """
-    if g[0] == 0.0:
-        return 1.0
-    m0 = _margin(g[4], g[5], g[6], g[10], g[11], g[12], g[13], cl, sl, g[14], g[15], g[16])
-    m1 = _margin(g[1], g[2], g[3], g[10], g[11], g[12], g[13], cl, sl, g[14], g[15], g[16])
+    m0 = _margin(px, py, pz, rho, zc, sin_lat, cos_lat, cl, sl, sin_el, cos_eta, range_max)
+    m1 = _margin(sx, sy, sz, rho, zc, sin_lat, cos_lat, cl, sl, sin_el, cos_eta, range_max)
     den = m0 - m1
     f = m0 / den if den != 0.0 else 1.0
     f = min(max(f, 0.0), 1.0)
-    if g[0] == 2.0:
-        ma = _margin(g[7], g[8], g[9], g[10], g[11], g[12], g[13], cl, sl, g[14], g[15], g[16])
+    if mode == 2:
+        ma = _margin(qx, qy, qz, rho, zc, sin_lat, cos_lat, cl, sl, sin_el, cos_eta, range_max)
         # p(t) = m0 + b t + c t^2 through t = -1, 0, 1
         b = 0.5 * (m1 - ma)
         c = 0.5 * (m1 + ma) - m0
@@ -329,9 +320,9 @@ def _crossing(g, cl, sl):
 def _close_level(a, c, i, kmax):
     """Record the level cell c has held since its last change, up to sample i."""
     dur = i - a[c, T_LAST]
-    if dur > 0:
+    if dur > 0.0:
         n_old = a[c, N_CUR]
-        a[c, HIST0 + (n_old if n_old < kmax else kmax)] += dur
+        a[c, HIST0 + (int(n_old) if n_old < kmax else kmax)] += dur
         a[c, SUM_N] += n_old * dur
         if n_old < a[c, MIN_N]:
             a[c, MIN_N] = n_old
@@ -341,76 +332,110 @@ def _close_level(a, c, i, kmax):
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _close_gap(a, c, i):
-    """Record the gap of cell c that began at GAP_START and ends at sample i (if not empty)."""
-    g = i - a[c, GAP_START]
-    if g > 0:
-        a[c, GAP_COUNT] += 1
-        a[c, SUM_GAP] += g
-        a[c, SUM_GAP2] += g * g
-        if g > a[c, MAX_GAP]:
-            a[c, MAX_GAP] = g
+def _close_gap(a, c, t_end):
+    """Record the gap of cell c from R_GAP_START to t_end [samples, fractional]."""
+    gr = t_end - a[c, R_GAP_START]
+    a[c, R_SUM_GAP] += gr
+    a[c, R_SUM_GAP2] += gr * gr
+    if gr > a[c, R_MAX_GAP]:
+        a[c, R_MAX_GAP] = gr
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _change_range(a, af, closing, base, j0, j1, n_lon, i, delta, kmax, g, cos_lon, sin_lon):
-    """Apply a +1 (a pass starts) or -1 change of the in-view count at sample i to the
-    columns j0 .. j1-1 (taken modulo n_lon) of the row starting at cell `base`; `g` is the
-    satellite and row geometry for crossing times (see :func:`_crossing`).
+def _push(a, ev0, c, s, kind):
+    """Queue a gap-boundary event (cell, satellite, kind) in the rows of `a` from ev0; it is
+    dropped if the queue is full, and that boundary then keeps its sample time."""
+    last = a.shape[0] - 1
+    q = int(a[last, 0])
+    if ev0 + q < last:
+        a[ev0 + q, 0] = c
+        a[ev0 + q, 1] = s
+        a[ev0 + q, 2] = kind
+        a[last, 0] = q + 1
 
-    Refined gap boundaries: a gap that closes at this sample ends at the earliest arrival
-    among the satellites arriving at it in this step (the cell is queued in `closing`, whose
-    last element counts the queue, and closed once every arrival is known); a gap that opens
-    at this sample starts at the latest departure among the last two satellites leaving it
-    in this step.
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _change_range(a, ev0, base, j0, j1, n_lon, i, delta, kmax, mode, s):
+    """Apply a +1 (a pass starts) or -1 change of the in-view count at sample i by satellite
+    s to the columns j0 .. j1-1 (taken modulo n_lon) of the row starting at cell `base`.
+
+    A gap boundary is recorded at the sample (mode 0), or queued as an event whose crossing
+    time is found at the end of the sample (:func:`_refine_events`): kind 0 the first
+    arrival closing a gap, kind 1 a further arrival in that step, kind 2 a departure of one
+    of the last two satellites in view.
     """
     for jj in range(j0, j1):
-        j = jj % n_lon
-        c = base + j
+        c = base + jj % n_lon
         _close_level(a, c, i, kmax)
         n_old = a[c, N_CUR]
         a[c, N_CUR] = n_old + delta
         if delta > 0:
-            a[c, PASS_COUNT] += 1
-            if n_old == 0:
+            a[c, PASS_COUNT] += 1.0
+            if n_old == 0.0:
                 if i > a[c, GAP_START]:
-                    _close_gap(a, c, i)
-                    a[c, CLOSE_SAMPLE] = i
-                    af[c, R_GAP_END] = i - 1 + _crossing(g, cos_lon[j], sin_lon[j])
-                    q = closing[closing.shape[0] - 1]
-                    closing[q] = c
-                    closing[closing.shape[0] - 1] = q + 1
-            elif a[c, CLOSE_SAMPLE] == i and g[0] != 0.0:
-                # another satellite arrives in the step in which the gap closed
-                te = i - 1 + _crossing(g, cos_lon[j], sin_lon[j])
-                if te < af[c, R_GAP_END]:
-                    af[c, R_GAP_END] = te
-        elif n_old <= 2:
-            tx = i - 1 + _crossing(g, cos_lon[j], sin_lon[j])
-            if n_old == 2:
-                a[c, EXIT_SAMPLE] = i
-                af[c, R_LAST_EXIT] = tx
-            else:
+                    a[c, GAP_COUNT] += 1.0
+                    if mode == 0:
+                        _close_gap(a, c, float(i))
+                    else:
+                        a[c, CLOSE_SAMPLE] = i
+                        a[c, R_GAP_END] = i
+                        _push(a, ev0, c, s, 0)
+            elif mode != 0 and a[c, CLOSE_SAMPLE] == i:
+                _push(a, ev0, c, s, 1)
+        else:
+            if n_old == 1.0:
                 a[c, GAP_START] = i
-                if a[c, EXIT_SAMPLE] == i and af[c, R_LAST_EXIT] > tx:
-                    tx = af[c, R_LAST_EXIT]
-                af[c, R_GAP_START] = tx
+                a[c, R_GAP_START] = i
+            if mode != 0 and n_old <= 2.0:
+                _push(a, ev0, c, s, 2)
     return max(j1 - j0, 0)
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _close_gap_refined(af, c, t_end):
-    """Record the gap of cell c from R_GAP_START to t_end [samples, fractional]."""
-    gr = t_end - af[c, R_GAP_START]
-    af[c, R_SUM_GAP] += gr
-    af[c, R_SUM_GAP2] += gr * gr
-    if gr > af[c, R_MAX_GAP]:
-        af[c, R_MAX_GAP] = gr
+@numba.njit(cache=True, nogil=True)
+def _refine_events(a, ev0, i, mode, b, pos_km, prev_pos, n_lon, rho, zr, sin_lat, cos_lat,
+                   cos_lon, sin_lon, sin_el, cos_eta, range_max):
+    """Place the gap boundaries queued at sample i at their crossing times.
+
+    A gap that closes ends at the earliest arrival in the step; a gap that opens (the cell
+    ends the sample with nobody in view) starts at the latest departure of the last two.
+    """
+    last = a.shape[0] - 1
+    n_ev = int(a[last, 0])
+    for phase in range(3):
+        for q in range(n_ev):
+            kind = int(a[ev0 + q, 2])
+            c = int(a[ev0 + q, 0])
+            if (phase < 2 and kind == 2) or (phase == 2 and kind != 2):
+                continue
+            if phase == 1:
+                if kind == 0:
+                    _close_gap(a, c, a[c, R_GAP_END])
+                continue
+            if kind == 2 and a[c, N_CUR] != 0.0:
+                continue  # the cell is still in view: no gap opens
+            s = int(a[ev0 + q, 1])
+            r = c // n_lon
+            j = c - r * n_lon
+            t = i - 1 + _crossing(mode, pos_km[s, b, 0], pos_km[s, b, 1], pos_km[s, b, 2],
+                                  prev_pos[s, 0], prev_pos[s, 1], prev_pos[s, 2],
+                                  prev_pos[s, 3], prev_pos[s, 4], prev_pos[s, 5], rho[r],
+                                  zr[r], sin_lat[r], cos_lat[r], cos_lon[j], sin_lon[j],
+                                  sin_el, cos_eta, range_max)
+            if kind == 0:
+                a[c, R_GAP_END] = t
+            elif kind == 1:
+                if t < a[c, R_GAP_END]:
+                    a[c, R_GAP_END] = t
+            elif a[c, EXIT_SAMPLE] != i:
+                a[c, EXIT_SAMPLE] = i
+                a[c, R_GAP_START] = t
+            elif t > a[c, R_GAP_START]:
+                a[c, R_GAP_START] = t
+    a[last, 0] = 0.0
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _apply_difference(a, af, closing, base, sa, la, sb, lb, n_lon, i, delta, kmax, g, cos_lon,
-                      sin_lon):
+def _apply_difference(a, ev0, base, sa, la, sb, lb, n_lon, i, delta, kmax, mode, s):
     """Apply `delta` to the cells of interval A that are not in interval B (one row)."""
     if la == 0:
         return 0
@@ -420,8 +445,8 @@ def _apply_difference(a, af, closing, base, sa, la, sb, lb, n_lon, i, delta, kma
         for m in range(la):
             j = (sa + m) % n_lon
             if (j - sb) % n_lon >= lb:
-                touched += _change_range(a, af, closing, base, j, j + 1, n_lon, i, delta,
-                                         kmax, g, cos_lon, sin_lon)
+                touched += _change_range(a, ev0, base, j, j + 1, n_lon, i, delta,
+                                         kmax, mode, s)
         return touched
     a1 = sa + la
     if lb == 0:
@@ -438,15 +463,15 @@ def _apply_difference(a, af, closing, base, sa, la, sb, lb, n_lon, i, delta, kma
         lo = lo0 if part == 0 else lo1
         hi = hi0 if part == 0 else hi1
         if hi > lo:
-            touched += _change_range(a, af, closing, base, lo, hi, n_lon, i, delta, kmax, g,
-                                     cos_lon, sin_lon)
+            touched += _change_range(a, ev0, base, lo, hi, n_lon, i, delta, kmax,
+                                     mode, s)
     return touched
 
 
 @numba.njit(cache=True, nogil=True)
 def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
-            el_min_rad, eta_max_rad, range_max_km, refine, acc, accf, closing, prev_start,
-            prev_len, prev_rows, exits, bound_cache, prev_pos, visits):
+            el_min_rad, eta_max_rad, range_max_km, refine, acc, n_cells, prev_start, prev_len,
+            prev_rows, exits, bound_cache, prev_pos, visits):
     """Advance one latitude band's streaming state over a block of samples.
 
     For each sample, each satellite's rows are visited once: the row's new interval is found,
@@ -469,8 +494,8 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
     refine : bool
         Place gap boundaries at the crossing time between samples (see :func:`_crossing`)
         instead of at the sample.
-    acc, accf, closing, prev_start, prev_len, prev_rows, exits, bound_cache, prev_pos : ndarray
-        State from :func:`new_state`, updated in place.
+    acc, prev_start, prev_len, prev_rows, exits, bound_cache, prev_pos : ndarray
+        State from :func:`new_state`, updated in place (``n_cells``: cells in ``acc``).
     visits : ndarray, (1,)
         Running count of satellite-sample-cell visibilities (for benchmarks), in place.
     """
@@ -500,7 +525,7 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
         n_exits = 0
         # crossing-time refinement: none at the first sample, a secant from the second,
         # a parabola through three samples from the third on
-        mode = 0.0 if not refine or i == 0 else (1.0 if i == 1 else 2.0)
+        mode = 0 if not refine or i == 0 else (1 if i == 1 else 2)
         for s in range(n_sat):
             sx = pos_km[s, b, 0]
             sy = pos_km[s, b, 1]
@@ -551,11 +576,8 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
                     pl = prev_len[s, r]
                 if cs == ps and cl == pl:
                     continue
-                g = (mode, sx, sy, sz, prev_pos[s, 0], prev_pos[s, 1], prev_pos[s, 2],
-                     prev_pos[s, 3], prev_pos[s, 4], prev_pos[s, 5], rho[r], zr[r],
-                     sin_lat[r], cos_lat[r], sin_el, cos_eta, range_lim)
-                _apply_difference(acc, accf, closing, r * n_lon, cs, cl, ps, pl, n_lon, i, 1,
-                                  kmax, g, cos_lon, sin_lon)
+                _apply_difference(acc, n_cells, r * n_lon, cs, cl, ps, pl, n_lon, i, 1,
+                                  kmax, mode, s)
                 if pl > 0:
                     exits[n_exits, 0] = r
                     exits[n_exits, 1] = ps
@@ -568,21 +590,13 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
                 prev_len[s, r] = cl
             prev_rows[s, 0] = c_lo
             prev_rows[s, 1] = c_hi
-        # gaps that closed at this sample, now that every arrival is known
-        n_closing = closing[closing.shape[0] - 1]
-        for q in range(n_closing):
-            c = closing[q]
-            _close_gap_refined(accf, c, accf[c, R_GAP_END])
-        closing[closing.shape[0] - 1] = 0
         for q in range(n_exits):
             r = exits[q, 0]
-            s = exits[q, 5]
-            g = (mode, pos_km[s, b, 0], pos_km[s, b, 1], pos_km[s, b, 2], prev_pos[s, 0],
-                 prev_pos[s, 1], prev_pos[s, 2], prev_pos[s, 3], prev_pos[s, 4],
-                 prev_pos[s, 5], rho[r], zr[r], sin_lat[r], cos_lat[r], sin_el, cos_eta,
-                 range_lim)
-            _apply_difference(acc, accf, closing, r * n_lon, exits[q, 1], exits[q, 2],
-                              exits[q, 3], exits[q, 4], n_lon, i, -1, kmax, g, cos_lon, sin_lon)
+            _apply_difference(acc, n_cells, r * n_lon, exits[q, 1], exits[q, 2],
+                              exits[q, 3], exits[q, 4], n_lon, i, -1, kmax, mode, exits[q, 5])
+        if mode != 0:
+            _refine_events(acc, n_cells, i, mode, b, pos_km, prev_pos, n_lon, rho, zr, sin_lat,
+                           cos_lat, cos_lon, sin_lon, sin_el, cos_eta, range_lim)
         for s in range(n_sat):
             prev_pos[s, 3] = prev_pos[s, 0]
             prev_pos[s, 4] = prev_pos[s, 1]
@@ -594,15 +608,15 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
 
 
 @numba.njit(cache=True, nogil=True)
-def close(n_steps, acc, accf):
+def close(n_steps, acc, n_cells):
     """Close every cell's open level and open gap at the end of the span (sample n_steps)."""
     kmax = acc.shape[1] - HIST0 - 1
-    for c in range(acc.shape[0]):
+    for c in range(n_cells):
         _close_level(acc, c, n_steps, kmax)
-        if acc[c, N_CUR] == 0:
+        if acc[c, N_CUR] == 0.0:
             if n_steps > acc[c, GAP_START]:
-                _close_gap(acc, c, n_steps)
-                _close_gap_refined(accf, c, float(n_steps))
+                acc[c, GAP_COUNT] += 1.0
+                _close_gap(acc, c, float(n_steps))
             acc[c, GAP_START] = n_steps
 
 
@@ -616,10 +630,10 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
             rows["rho_km"], rows["z_km"], rows["sin_lat"], rows["cos_lat"], rows["psi_rad"],
             float(lon0_rad), float(dlon_rad), int(n_lon),
             float(el_min_rad), float(eta_max_rad), float(range_max_km), bool(refine),
-            st["acc"], st["accf"], st["closing"], st["prev_start"], st["prev_len"],
+            st["acc"], int(st["n_cells"][0]), st["prev_start"], st["prev_len"],
             st["prev_rows"], st["exits"], st["bound_cache"], st["prev_pos"], st["visits"])
 
 
 def close_band(state: dict[str, np.ndarray], n_steps: int) -> None:
     """Python entry point to :func:`close`."""
-    close(int(n_steps), state["acc"], state["accf"])
+    close(int(n_steps), state["acc"], int(state["n_cells"][0]))
