@@ -332,6 +332,8 @@ def _cmd_elements(args: argparse.Namespace) -> int:
                 ("perigee altitude", f"{a * (1 - e) - WGS84_A_KM:.3f}", "km"),
                 ("apogee altitude", f"{a * (1 + e) - WGS84_A_KM:.3f}", "km"),
             ]
+            if a * (1 - e) < WGS84_A_KM:
+                rows.append(("note", "perigee below the Earth's surface", ""))
         else:
             rows.append(("orbit", "open (e >= 1): no period or apogee", ""))
         print(_table(rows))
@@ -369,6 +371,8 @@ def _cmd_elements(args: argparse.Namespace) -> int:
         ("period", f"{2 * math.pi * math.sqrt(a**3 / mu):.3f}", "s"),
         ("perigee altitude", f"{a * (1 - e) - WGS84_A_KM:.3f}", "km"),
     ]
+    if e < 1.0 and a * (1 - e) < WGS84_A_KM:
+        rows.append(("note", "perigee below the Earth's surface", ""))
     print(_table(rows))
     return EXIT_OK
 

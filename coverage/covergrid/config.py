@@ -20,6 +20,7 @@ import typing
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
+import numpy as np
 import yaml
 from pydantic import (
     BaseModel,
@@ -699,6 +700,19 @@ class Study(_Model):
                 problems.append((("requirement", "k"), f"exceeds the number of satellites "
                                  f"{total}; allowed: 1 to {total}", self.requirement.k))
         problems += _trade_problems(self)
+        if self.sensor.max_range_km is not None and not problems:
+            # every satellite stays at least (perigee radius - equatorial radius) from the
+            # ground: a shorter range limit means nothing is ever in view
+            try:
+                els = self.to_elements()
+                lowest = float(np.min(els.a_km * (1.0 - els.e))) - WGS84_A_KM
+            except (ValueError, TypeError):
+                lowest = -1.0  # reported by the satellites' own checks
+            if self.sensor.max_range_km < lowest:
+                problems.append((("sensor", "max_range_km"), f"is shorter than the lowest "
+                                 f"satellite altitude ({lowest:.1f} km), so nothing would ever "
+                                 f"be in view; allowed: more than {lowest:.1f} km",
+                                 self.sensor.max_range_km))
         if problems:
             raise _Problems(problems)
         return self

@@ -634,15 +634,19 @@ def trade_figures(rows: list[dict], study, folder: Path, *, caption: str) -> lis
         info = METRICS[r.metric]
         metric, better, units = "achieved", info.better, info.units
         threshold = r.at_most if r.at_most is not None else r.at_least
+        fold = f" (k = {r.k})" if r.k else ""
+        long_name = (f"{info.long_name}{fold} met over {100 * r.area_fraction:g} % of the "
+                     "area")
     else:
         name = next((m for m in study.maps.metrics if m != "nfold_fraction"),
                     "coverage_fraction")
         metric, better, units, threshold = f"{name}_mean", METRICS[name].better, None, None
+        long_name = f"area-weighted mean {METRICS[name].long_name}"
         table.pop("meets", None)
     by = ("altitude_km" if np.unique(table["altitude_km"]).size > 1
           or np.unique(table["inclination_deg"]).size == 1 else "inclination_deg")
     return save_trade_figures(table, metric, folder, caption=caption, by=by, better=better,
-                              units=units, requirement=threshold)
+                              units=units, requirement=threshold, long_name=long_name)
 
 
 def _caption(study, designs: Sequence[Design], what: str) -> str:

@@ -115,3 +115,17 @@ def test_table_errors():
     with pytest.raises(CovergridError, match="mapping of columns"):
         trades.design_columns([1, 2, 3], ["total"])
     assert plt.get_fignums() == []
+
+
+def test_axis_names_what_is_traded():
+    """A sweep trades the achieved value of the requirement's metric: the axis must say
+    which metric and over what share of the area, not just 'achieved'."""
+    table = _table()
+    table["achieved"] = np.asarray(table["max_gap"], dtype=float)
+    name = "maximum gap met over 90 % of the area"
+    lines = trades.plot_metric_vs_total(table, "achieved", better="lower", units="s",
+                                        long_name=name)
+    try:
+        assert lines[0].axes.get_ylabel() == f"{name} [h]"
+    finally:
+        plt.close(lines[0].axes.figure)

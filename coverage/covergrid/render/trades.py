@@ -216,7 +216,7 @@ def _format_by(by: str, value: float) -> str:
 def plot_metric_vs_total(table, metric: str, *, by: str = "altitude_km",
                          better: str | None = None, units: str | None = None,
                          requirement: float | None = None, title: str | None = None,
-                         caption: str | None = None, ax=None):
+                         caption: str | None = None, ax=None, long_name: str | None = None):
     """Best achieved metric against total satellites, one line per altitude (or inclination).
 
     Parameters
@@ -247,7 +247,7 @@ def plot_metric_vs_total(table, metric: str, *, by: str = "altitude_km",
     cols = design_columns(table, ["total", by, metric])
     lower, units = _better_and_units(metric, better, units)
     values = cols[metric].astype(float)
-    unit, label = _metric_display(metric, units, values)
+    unit, label = _metric_display(metric, units, values, long_name)
     groups = np.unique(cols[by].astype(float))
     colours = mpl.colormaps["viridis"](np.linspace(0.0, 0.85, max(groups.size, 1)))
     with style.report_style():
@@ -348,7 +348,8 @@ def plot_minimum_total_map(table, *, title: str | None = None, caption: str | No
 
 def plot_pareto_front(table, metric: str, *, better: str | None = None,
                       units: str | None = None, requirement: float | None = None,
-                      title: str | None = None, caption: str | None = None, ax=None):
+                      title: str | None = None, caption: str | None = None, ax=None,
+                      long_name: str | None = None):
     """All designs as total against achieved metric, with the Pareto front drawn through them.
 
     Parameters
@@ -376,7 +377,7 @@ def plot_pareto_front(table, metric: str, *, better: str | None = None,
     lower, units = _better_and_units(metric, better, units)
     values = cols[metric].astype(float)
     total = cols["total"].astype(float)
-    unit, label = _metric_display(metric, units, values)
+    unit, label = _metric_display(metric, units, values, long_name)
     front = pareto_front(total, values, lower_is_better=lower)
     meets = cols.get("meets")
     colour = style.line_colour(metric, units)
@@ -388,8 +389,8 @@ def plot_pareto_front(table, metric: str, *, better: str | None = None,
             ax.scatter(total, values * unit.factor, s=12, color="0.6", label="design")
         else:
             ok = meets.astype(bool)
-            ax.scatter(total[ok], values[ok] * unit.factor, s=14, color="0.45",
-                       label="meets requirement")
+            ax.scatter(total[ok], values[ok] * unit.factor, s=16, color=colour, alpha=0.55,
+                       linewidths=0, label="meets requirement")
             ax.scatter(total[~ok], values[~ok] * unit.factor, s=14, facecolors="none",
                        edgecolors="0.6", linewidths=0.7, label="fails requirement")
         ax.step(total[front], values[front] * unit.factor, where="post", color=colour,
@@ -414,7 +415,8 @@ def plot_pareto_front(table, metric: str, *, better: str | None = None,
 
 def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = None,
                        by: str = "altitude_km", better: str | None = None,
-                       units: str | None = None, requirement: float | None = None) -> list[Path]:
+                       units: str | None = None, requirement: float | None = None,
+                       long_name: str | None = None) -> list[Path]:
     """Write the three trade figures (PNG 200 dpi and vector PDF) into ``out_dir``.
 
     Files: ``trade_metric_vs_total``, ``trade_min_total`` (only when the table has ``meets``)
@@ -432,6 +434,8 @@ def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = Non
         Caption of every figure.
     by, better, units, requirement
         As for :func:`plot_metric_vs_total`.
+    long_name : str, optional
+        Axis label of the metric (default: its registry long name, or the column name).
 
     Returns
     -------
@@ -443,11 +447,13 @@ def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = Non
     cols = design_columns(table, ["total", by, metric], optional=["meets"])  # validate first
     _better_and_units(metric, better, units)
     jobs = [("trade_metric_vs_total", lambda ax: plot_metric_vs_total(
-        table, metric, by=by, better=better, units=units, requirement=requirement, ax=ax))]
+        table, metric, by=by, better=better, units=units, requirement=requirement, ax=ax,
+        long_name=long_name))]
     if "meets" in cols:
         jobs.append(("trade_min_total", lambda ax: plot_minimum_total_map(table, ax=ax)))
     jobs.append(("trade_pareto", lambda ax: plot_pareto_front(
-        table, metric, better=better, units=units, requirement=requirement, ax=ax)))
+        table, metric, better=better, units=units, requirement=requirement, ax=ax,
+        long_name=long_name)))
     out = Path(os.fspath(out_dir))
     written = []
     for stem, draw in jobs:
