@@ -215,3 +215,17 @@ def test_example_trade_studies_are_valid(name):
     if study.sizing is not None:
         assert study.requirement is not None
         sizing.coarse_context(study)  # the coarse block fits the grid and span
+
+
+def test_robust_trade_figures_count_only_designs_that_survive_a_loss():
+    """With robust_to_one_loss, the smallest feasible total in the trade figures must be the
+    robust answer, not the smallest design that meets the requirement intact."""
+    res = sizing.size_study(_revisit(robust_to_one_loss=True, loss_cases="all"))
+    plain = sizing.size_study(_revisit()).best
+    shown = sizing.robust_verdicts(res.designs)
+    feasible = [d["total"] for d in shown if d["meets"]]
+    assert min(feasible) == res.best["total"]
+    assert all(not d.get("lost_satellite") for d in shown)
+    if plain["total"] < res.best["total"]:
+        # the intact answer is there but no longer counts as feasible
+        assert any(d["total"] == plain["total"] and not d["meets"] for d in shown)

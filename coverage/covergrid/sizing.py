@@ -347,6 +347,26 @@ def _robust(candidates, mode, context, store, runner, progress, counts, full_row
     return out
 
 
+def robust_verdicts(designs: list[dict]) -> list[dict]:
+    """The intact designs with ``meets`` true only where every evaluated single loss meets too.
+
+    Designs whose losses were never evaluated (the search had already stopped, or the intact
+    design fails) count as not meeting; every intact-feasible design at or below a cell's
+    chosen total has had its losses evaluated, so the smallest robust total is unaffected.
+    """
+    def key(d: dict) -> tuple:
+        return (d["pattern"], int(d["total"]), int(d["planes"]), int(d["phasing"]),
+                float(d["altitude_km"]), float(d["inclination_deg"]),
+                float(d["min_elevation_deg"]))
+
+    loss_ok: dict[tuple, bool] = {}
+    for d in designs:
+        if d.get("lost_satellite"):
+            loss_ok[key(d)] = loss_ok.get(key(d), True) and bool(d["meets"])
+    return [{**d, "meets": bool(d["meets"]) and loss_ok.get(key(d), False)}
+            for d in designs if not d.get("lost_satellite")]
+
+
 def _result_row(cell, best: dict | None, tried: int, per_cell: dict, pattern: str) -> dict:
     alt, inc = cell
     row: dict[str, Any] = {"altitude_km": alt, "inclination_deg": inc,
@@ -417,14 +437,19 @@ def run_sizing(study, out_dir: str | os.PathLike | None = None, *,
     if res.designs:
         files += write_table(res.designs, study, folder, "sizing_designs")
     files.append(io.write_text(study.dump_resolved_yaml(), folder / "study.resolved.yaml"))
+    robust = study.sizing is not None and study.sizing.robust_to_one_loss
+    if robust:
+        intact = robust_verdicts(res.designs)
     if figures and intact:
         from covergrid.sweep import Design as _D
 
         shown = [_D(d["pattern"], int(d["total"]), int(d["planes"]), int(d["phasing"]),
                     float(d["altitude_km"]), float(d["inclination_deg"]),
                     float(d["min_elevation_deg"])) for d in intact]
+        what = "Sizing search (designs evaluated at full resolution"
+        what += ("; a design meets the requirement only if it still does after losing its "
+                 "worst single satellite)" if robust else ")")
         files += trade_figures(intact, study, folder / "trades" / "sizing",
-                               caption=_caption(study, shown, "Sizing search (designs "
-                                                "evaluated at full resolution)"))
+                               caption=_caption(study, shown, what))
     res.out_dir, res.files = folder, files
     return res
