@@ -248,3 +248,21 @@ def test_sweep_command_reports_and_refuses_a_study_without_a_sweep(tmp_path, cap
     assert main(["sweep", str(path), "--out", str(tmp_path / "x")]) == 2
     assert "sweep: the study file has no sweep block" in capsys.readouterr().err
     assert not (tmp_path / "x").exists()
+
+
+def test_refine_transitions_reaches_the_engine_and_the_store_key():
+    """`refine_transitions: false` gives the pure sampled gaps (whole steps) in runs and
+    sweeps alike, and a sweep never reuses rows computed with the other setting."""
+    import numpy as np
+
+    from covergrid.store import result_key
+
+    on, off = _study(), _study(refine_transitions=False)
+    gaps_off = run_study(off).dataset.max_gap.values
+    assert np.all(np.mod(gaps_off, off.step_s) == 0.0)
+    gaps_on = run_study(on).dataset.max_gap.values
+    assert np.any(np.mod(gaps_on, on.step_s) != 0.0)
+    design = sweep.sweep_designs(on)[0]
+    k_on = result_key(sweep.EvalContext.from_study(on).inputs(design))
+    k_off = result_key(sweep.EvalContext.from_study(off).inputs(design))
+    assert k_on != k_off

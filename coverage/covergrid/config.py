@@ -620,6 +620,9 @@ class Study(_Model):
     output: OutputSpec = Field(default_factory=lambda: OutputSpec.model_validate({}))
     sweep: SweepSpec | None = Field(None, description="A batch of designs (covergrid sweep).")
     sizing: SizingSpec | None = Field(None, description="A sizing search (covergrid size).")
+    refine_transitions: bool = Field(
+        True, description="Place gap starts and ends at the limit-crossing time between "
+        "samples (true), or at the sample (false: pure sampled values).")
 
     _study_text = field_validator("study", mode="before")(_text_id)
 

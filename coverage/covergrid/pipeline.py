@@ -438,7 +438,7 @@ def run_study(study: Study, out_dir: str | Path | None = None, *, progress: bool
             elements, study.epoch_datetime64(), study.duration_s, study.step_s,
             study.grid.cells(), sensor, nfold_max=study.nfold_max,
             chunk_rows=study.compute.chunk_rows, scheduler=sched, progress=progress,
-            attrs=_attrs(study),
+            attrs=_attrs(study), refine_transitions=study.refine_transitions,
         )
     summary = summarise_study(study, ds)
     if out_dir is None:

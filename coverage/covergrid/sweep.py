@@ -151,6 +151,8 @@ class EvalContext:
         K of ``nfold_fraction``.
     requirement : tuple or None
         ``(metric, at_most, at_least, area_fraction, k)``.
+    refine_transitions : bool
+        Gap boundaries at limit-crossing times (see :func:`covergrid.engine.compute_coverage`).
     software : str
         :func:`covergrid.store.software_fingerprint`.
     """
@@ -166,6 +168,7 @@ class EvalContext:
     nfold_max: int
     requirement: tuple | None
     software: str
+    refine_transitions: bool = True
 
     @classmethod
     def from_study(cls, study, *, resolution_deg: float | None = None,
@@ -183,7 +186,8 @@ class EvalContext:
             lat_min_deg=float(study.grid.lat_min_deg), lat_max_deg=float(study.grid.lat_max_deg),
             max_off_nadir_deg=study.sensor.max_off_nadir_deg,
             max_range_km=study.sensor.max_range_km, nfold_max=int(study.nfold_max),
-            requirement=req, software=software_fingerprint())
+            requirement=req, software=software_fingerprint(),
+            refine_transitions=bool(study.refine_transitions))
 
     def requirement_dict(self) -> dict | None:
         """Keyword arguments of :func:`covergrid.summary.requirement_verdict`."""
@@ -325,7 +329,8 @@ def evaluate_design(design: Design, context: EvalContext) -> dict[str, Any]:
                         max_range_km=context.max_range_km)
     ds = compute_coverage(design.elements(), context.epoch, context.duration_s, context.step_s,
                           grid, sensor, nfold_max=context.nfold_max, chunk_rows=grid.n_lat,
-                          scheduler="synchronous")
+                          scheduler="synchronous",
+                          refine_transitions=context.refine_transitions)
     row: dict[str, Any] = {
         "pattern": design.pattern, "total": design.total, "planes": design.planes,
         "phasing": design.phasing, "altitude_km": design.altitude_km,
