@@ -25,6 +25,7 @@ from __future__ import annotations
 import contextlib
 import math
 import os
+import sys
 import time
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import asdict, dataclass, replace
@@ -485,8 +486,9 @@ def run_designs(designs: Sequence[Design], context: EvalContext, store, runner: 
     if progress and todo:
         from tqdm import tqdm
 
+        # at a terminal, lively; into a log file, one line every 30 s at most
         bar = tqdm(total=len(rows) + len(todo), initial=len(rows), desc=desc, unit="design",
-                   dynamic_ncols=True)
+                   dynamic_ncols=True, mininterval=0.2 if sys.stderr.isatty() else 30.0)
     futures = {}
     try:
         for key, d in todo.items():
