@@ -99,7 +99,7 @@ def n_samples(duration_s: float, step_s: float) -> int:
     return int(round(n))
 
 
-def band_edges(n_lat: int, chunk_rows: int | None, n_sat: int = 1) -> list[tuple[int, int]]:
+def band_edges(n_lat: int, chunk_rows: int | None) -> list[tuple[int, int]]:
     """Split rows 0..n_lat into contiguous bands of at most `chunk_rows` rows.
 
     With ``chunk_rows=None`` the band count is about four per available core (at least one
@@ -247,7 +247,7 @@ def compute_coverage(
         raise CovergridError("the constellation has no satellites", "constellation")
     g = Grid(grid)
     theta0 = float(gmst_rad(epoch, 0.0))
-    bands = band_edges(grid.n_lat, chunk_rows, n_sat)
+    bands = band_edges(grid.n_lat, chunk_rows)
     n_lon = grid.n_lon
 
     depth = len(_PLANAR) + nfold_max + 1

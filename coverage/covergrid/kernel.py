@@ -83,7 +83,10 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
         kind), whose count is in the last row. Also the previous interval of every
         satellite in every row, one sample's queued exits, per-satellite caches, ``visits``.
     """
-    cap = 4 * n_cells + 1024
+    # Per sample a cell has at most one closing arrival and two departure events; further
+    # arrivals in a closing step are rare. Twice the cells (plus slack) is ample; an event
+    # that would overflow the queue is dropped and its boundary keeps the sample time.
+    cap = 2 * n_cells + 1024
     acc = np.zeros((n_cells + cap + 1, HIST0 + nfold_max + 1))
     acc[:n_cells, MIN_N] = 2.0**40
     acc[:n_cells, CLOSE_SAMPLE] = -1.0
@@ -102,6 +105,12 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str
         "prev_pos": np.zeros((n_sat, 6)),
         "visits": np.zeros(1, np.int64),
     }
+
+
+def state_bytes_per_cell(nfold_max: int) -> int:
+    """Bytes of streaming state per cell of a band, as :func:`new_state` allocates them: one
+    float64 row of ``HIST0 + K + 1`` values, plus two rows of event-queue capacity."""
+    return 3 * 8 * (HIST0 + nfold_max + 1)
 
 
 def accumulators(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:

@@ -42,17 +42,15 @@ __all__ = [
 #: Bytes per cell of the finished Dataset besides nfold_fraction: 7 float64 metrics,
 #: 4 int32 counts and the float64 cell area (covergrid.metrics, covergrid.engine).
 _OUTPUT_BYTES_PER_CELL = 7 * 8 + 4 * 4 + 8
-#: Bytes per cell of the kernel's streaming state besides the in-view histogram
-#: (covergrid.kernel.new_state: 3 int32 bookkeeping, sum_n int64, min/max int32, gap_count
-#: int32, 3 int64 gap sums, pass_count int32).
-_STATE_BYTES_PER_CELL = 3 * 4 + 8 + 2 * 4 + 4 + 3 * 8 + 4
 #: Satellite-position buffer per running task (covergrid.engine._POSITION_BLOCK_BYTES).
 _POSITION_BUFFER_BYTES = 16 * 2**20
 #: Resident memory of a run besides the per-cell terms: the interpreter with numpy, numba,
 #: dask, xarray and netCDF4 imported (0.29 GB peak for a 2 deg study) plus what computing
 #: and writing adds (about 0.25 GB). Fitted to peak RSS (GNU time -v) of `covergrid run` on
 #: the development machine: 24 satellites, 6 h at 60 s, global grids of 0.25 deg (measured
-#: 0.75 GB, estimated 0.92 GB) and 0.1 deg (measured 2.30 GB, estimated 2.59 GB).
+#: 0.75 GB, estimated 0.92 GB) and 0.1 deg (measured 2.30 GB, estimated 2.59 GB). Checked
+#: again with the one-array kernel state (covergrid.kernel.state_bytes_per_cell): 12
+#: satellites, 7 days at 10 s, 0.25 deg, maps included: measured 0.88 GB, estimated 1.03 GB.
 _BASELINE_BYTES = 550 * 2**20
 #: Copies of the finished Dataset alive at the peak: the band results and the assembled
 #: arrays (2), plus a margin of half a copy for writing and summarising (same fit).
@@ -138,6 +136,7 @@ def estimate(study: Study, *, workers: int | None = None) -> dict[str, Any]:
     import numpy as np
 
     from covergrid.engine import band_edges
+    from covergrid.kernel import state_bytes_per_cell
 
     elements = study.to_elements()
     n_sat = len(elements.ids)
@@ -161,12 +160,12 @@ def estimate(study: Study, *, workers: int | None = None) -> dict[str, Any]:
             workers = 1
         else:
             workers = os.cpu_count() or 1
-    bands = band_edges(rows, study.compute.chunk_rows, n_sat)
+    bands = band_edges(rows, study.compute.chunk_rows)
     b_rows = max(b - a for a, b in bands)
     out_bytes = cells * (_OUTPUT_BYTES_PER_CELL + 8 * k)
     # per running task: the band's streaming state, the position buffer and 4 int32
     # interval arrays per satellite and row (its finished metrics are counted in out_bytes)
-    cell_bytes = _STATE_BYTES_PER_CELL + 8 * (k + 1)
+    cell_bytes = state_bytes_per_cell(k)
     per_task = b_rows * cols * cell_bytes + _POSITION_BUFFER_BYTES + 4 * 4 * n_sat * b_rows
     running = min(workers, len(bands))
     memory = _BASELINE_BYTES + _OUTPUT_COPIES * out_bytes + running * per_task
