@@ -15,11 +15,13 @@ $(STAMP): pyproject.toml
 	$(PY) -m pip install --quiet -e '.[dev]'
 	touch $(STAMP)
 
+# the pytest entry point, not `python -m pytest`: the latter puts the repository root on
+# sys.path (see DEVELOPERS.md)
 test: $(STAMP)
-	$(PY) -m pytest -q
+	$(VENV)/bin/pytest -q
 
 test-fast: $(STAMP)
-	$(PY) -m pytest -q -m 'not slow'
+	$(VENV)/bin/pytest -q -m 'not slow'
 
 bench: $(STAMP)
 	$(PY) tests/benchmarks/run_all.py

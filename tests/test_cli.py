@@ -6,35 +6,15 @@ import json
 import re
 import subprocess
 import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
 import xarray as xr
 
+from conftest import REPO, TINY_STUDY, compliance_report, write_study
 from covergrid import __version__, cli
-from covergrid.config import export_schema, load_study
-from covergrid.metrics import METRICS
-from test_io import compliance_report
-
-REPO = Path(__file__).resolve().parents[1]
-
-TINY = """\
-study: tiny-ring
-epoch: 2031-03-20T00:00:00Z
-duration_h: 2
-step_s: 60
-constellation:
-  - walker: {pattern: delta, total: 6, planes: 3, phasing: 1}
-    template: {altitude_km: 1200, inclination_deg: 55}
-grid: {resolution_deg: 10}
-"""
-
-
-def _write(tmp_path: Path, text: str, name: str = "study.yaml") -> Path:
-    path = tmp_path / name
-    path.write_text(text, encoding="utf-8")
-    return path
+from covergrid.compute.metrics import METRICS
+from covergrid.study import export_schema, load_study, resolve
 
 
 def _numbers(text: str, label: str) -> list[float]:
@@ -140,7 +120,7 @@ def test_schema_command_prints_the_checked_in_schema(capsys):
 
 
 def test_check_prints_the_work_without_computing(tmp_path, capsys, monkeypatch):
-    study = _write(tmp_path, TINY + "requirement: {metric: max_gap, at_most: 3600}\n")
+    study = write_study(tmp_path, TINY_STUDY + "requirement: {metric: max_gap, at_most: 3600}\n")
     monkeypatch.chdir(tmp_path)
     assert cli.main(["check", str(study)]) == 0
     out = capsys.readouterr().out
@@ -155,15 +135,16 @@ def test_check_prints_the_work_without_computing(tmp_path, capsys, monkeypatch):
 
 
 def test_check_refuses_a_study_over_the_memory_limit(tmp_path, capsys):
-    study = _write(tmp_path, TINY.replace("{resolution_deg: 10}", "{resolution_deg: 0.25}")
-                   + "compute: {memory_limit_gb: 0.1}\n")
+    study = write_study(tmp_path,
+                        TINY_STUDY.replace("{resolution_deg: 10}", "{resolution_deg: 0.25}")
+                        + "compute: {memory_limit_gb: 0.1}\n")
     assert cli.main(["check", str(study)]) == 2
     err = capsys.readouterr().err
     assert "grid.resolution_deg: the run needs about" in err and "--force" in err
 
 
 def test_run_end_to_end_writes_every_output(tmp_path, capsys):
-    study = _write(tmp_path, TINY + "requirement: {metric: max_gap, at_most: 3600, "
+    study = write_study(tmp_path, TINY_STUDY + "requirement: {metric: max_gap, at_most: 3600, "
                    "area_fraction: 0.5}\n")
     out = tmp_path / "out"
     assert cli.main(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]) == 0
@@ -189,7 +170,7 @@ def test_run_end_to_end_writes_every_output(tmp_path, capsys):
 
 def test_local_cluster_gives_the_same_data(tmp_path):
     pytest.importorskip("distributed")
-    study = _write(tmp_path, TINY + "compute: {scheduler: local-cluster, workers: 1, "
+    study = write_study(tmp_path, TINY_STUDY + "compute: {scheduler: local-cluster, workers: 1, "
                    "threads_per_worker: 1}\n")
     ds_cluster = load_study(study)
     import covergrid
@@ -201,7 +182,7 @@ def test_local_cluster_gives_the_same_data(tmp_path):
 
 def test_run_status_1_when_the_requirement_is_not_met(tmp_path, capsys):
     # Six satellites cannot keep every cell's gap under a minute for 2 h.
-    study = _write(tmp_path, TINY + "requirement: {metric: max_gap, at_most: 60}\n")
+    study = write_study(tmp_path, TINY_STUDY + "requirement: {metric: max_gap, at_most: 60}\n")
     assert cli.main(["run", str(study), "--out", str(tmp_path / "o"), "--no-maps"]) == 1
     out = capsys.readouterr().out
     assert "NOT MET" in out and "margin -" in out
@@ -209,7 +190,7 @@ def test_run_status_1_when_the_requirement_is_not_met(tmp_path, capsys):
 
 
 def test_run_into_a_file_is_refused_before_computing(tmp_path, capsys):
-    study = _write(tmp_path, TINY)
+    study = write_study(tmp_path, TINY_STUDY)
     blocker = tmp_path / "blocker"
     blocker.write_text("x")
     assert cli.main(["run", str(study), "--out", str(blocker), "--quiet"]) == 2
@@ -219,7 +200,7 @@ def test_run_into_a_file_is_refused_before_computing(tmp_path, capsys):
 
 
 def test_force_overrides_the_memory_limit(tmp_path, capsys):
-    study = _write(tmp_path, TINY + "compute: {memory_limit_gb: 0.01}\n")
+    study = write_study(tmp_path, TINY_STUDY + "compute: {memory_limit_gb: 0.01}\n")
     out = tmp_path / "o"
     assert cli.main(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]) == 2
     assert not out.exists()
@@ -229,7 +210,7 @@ def test_force_overrides_the_memory_limit(tmp_path, capsys):
 
 
 def test_scheduler_option_gives_identical_data(tmp_path, capsys):
-    study = _write(tmp_path, TINY)
+    study = write_study(tmp_path, TINY_STUDY)
     a, b = tmp_path / "a", tmp_path / "b"
     assert cli.main(["run", str(study), "--out", str(a), "--no-maps", "--quiet",
                      "--scheduler", "synchronous"]) == 0
@@ -244,7 +225,7 @@ def test_scheduler_option_gives_identical_data(tmp_path, capsys):
 def test_python_api_matches_the_command(tmp_path):
     import covergrid
 
-    study = covergrid.load_study(_write(tmp_path, TINY))
+    study = covergrid.load_study(write_study(tmp_path, TINY_STUDY))
     ds = covergrid.run(study)
     est = covergrid.estimate(study)
     assert ds.sizes["lat"] * ds.sizes["lon"] == est["cells"]
@@ -253,7 +234,7 @@ def test_python_api_matches_the_command(tmp_path):
 
 
 def test_console_script_runs_in_a_real_process(tmp_path):
-    study = _write(tmp_path, TINY)
+    study = write_study(tmp_path, TINY_STUDY)
     proc = subprocess.run([sys.executable, "-m", "covergrid.cli", "check", str(study)],
                           capture_output=True, text=True, timeout=120, check=False)
     assert proc.returncode == 0, proc.stderr
@@ -263,7 +244,7 @@ def test_console_script_runs_in_a_real_process(tmp_path):
 @pytest.mark.slow  # cartopy figures: 3-8 s
 def test_run_with_figures(tmp_path):
     pytest.importorskip("cartopy")
-    study = _write(tmp_path, TINY)
+    study = write_study(tmp_path, TINY_STUDY)
     assert cli.main(["run", str(study), "--out", str(tmp_path / "o"), "--quiet"]) == 0
     folder = tmp_path / "o" / "tiny-ring"
     names = {p.relative_to(folder).as_posix() for p in folder.rglob("*") if p.is_file()}
@@ -276,7 +257,7 @@ def test_run_with_figures(tmp_path):
 
 def test_scheduler_address_of_an_existing_cluster(tmp_path, capsys):
     distributed = pytest.importorskip("distributed")
-    study = _write(tmp_path, TINY)
+    study = write_study(tmp_path, TINY_STUDY)
     with distributed.LocalCluster(n_workers=1, threads_per_worker=1, host="127.0.0.1",
                                   dashboard_address=None, processes=False,
                                   protocol="tcp://") as cluster:
@@ -295,9 +276,9 @@ def test_nfold_requirement_uses_its_fold(tmp_path, capsys):
     # k = 6 means all six in view at once: impossible here, as the two satellites of a plane
     # are 180 deg apart while one coverage circle at 1200 km and 10 deg spans under 60 deg of
     # central angle. So any positive 6-fold share fails; nfold_max grows to 6.
-    study = _write(tmp_path, TINY + "requirement: {metric: nfold_fraction, k: 6, "
+    study = write_study(tmp_path, TINY_STUDY + "requirement: {metric: nfold_fraction, k: 6, "
                    "at_least: 0.01, area_fraction: 0.5}\n")
-    assert load_study(study).nfold_max == 6
+    assert resolve(load_study(study)).nfold_max == 6
     assert cli.main(["run", str(study), "--out", str(tmp_path / "o"), "--no-maps",
                      "--quiet"]) == 1
     summary = json.loads((tmp_path / "o" / "tiny-ring" / "summary.json").read_text())

@@ -9,10 +9,13 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from covergrid.engine import GridSpec, SensorSpec, band_edges, compute_coverage, n_samples
+from covergrid.compute.engine import compute_coverage
+from covergrid.compute.grid import GridSpec, row_bands
+from covergrid.compute.metrics import METRICS
+from covergrid.compute.sensor import Sensor
+from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError
-from covergrid.metrics import METRICS
-from covergrid.orbits.design import period_s
+from covergrid.orbits.special import period_s
 from covergrid.orbits.walker import from_keplerian, walker_delta
 
 EPOCH = "2027-03-14T06:00:00Z"
@@ -21,7 +24,7 @@ RE = 6378.137
 
 def _small():
     el = walker_delta(12, 3, 1, a_km=RE + 1000.0, i_rad=math.radians(63.0))
-    return el, GridSpec(6.0), SensorSpec(10.0, max_off_nadir_deg=50.0)
+    return el, GridSpec(6.0), Sensor(10.0, max_off_nadir_deg=50.0)
 
 
 def test_dataset_layout_and_cf_attributes():
@@ -101,7 +104,7 @@ def test_geostationary_footprint_matches_handbook_central_angle():
     a = 42164.17  # geostationary radius, common practice
     eps = 10.0
     geo = from_keplerian([a], [0.0], [0.0], [0.0], [0.0], mean_anomaly_rad=[0.0], ids=["GEO"])
-    ds = compute_coverage(geo, EPOCH, 2 * 3600.0, 600.0, GridSpec(1.0), SensorSpec(eps),
+    ds = compute_coverage(geo, EPOCH, 2 * 3600.0, 600.0, GridSpec(1.0), Sensor(eps),
                           scheduler="synchronous")
     # where is the sub-satellite point? the cell seen from the highest elevation
     cov = ds.coverage_fraction.values
@@ -143,7 +146,7 @@ def _ballard_run(T, P, F, inc_deg, lam_deg):
     el = walker_delta(T, P, F, a_km=r, i_rad=math.radians(inc_deg))
     step = 30.0
     span = step * math.ceil(period_s(r) / step)  # one orbit: the pattern's geometry repeats
-    return compute_coverage(el, EPOCH, span, step, GridSpec(2.0), SensorSpec(0.0))
+    return compute_coverage(el, EPOCH, span, step, GridSpec(2.0), Sensor(0.0))
 
 
 @pytest.mark.parametrize("T, P, F, inc, R", BALLARD_TABLE_I)
@@ -160,17 +163,17 @@ def test_ballard_patterns_leave_a_gap_just_below_R(T, P, F, inc, R):
 
 def test_span_and_step_errors():
     with pytest.raises(CovergridError, match="step_s"):
-        n_samples(3600.0, 7200.0)
+        count_steps(3600.0, 7200.0)
     with pytest.raises(CovergridError, match="whole number"):
-        n_samples(3600.0, 7.0)
+        count_steps(3600.0, 7.0)
     with pytest.raises(CovergridError, match="step_s"):
-        n_samples(3600.0, 0.0)
+        count_steps(3600.0, 0.0)
     with pytest.raises(CovergridError, match="compute.chunk_rows"):
-        band_edges(10, 0)
+        row_bands(10, 0)
     with pytest.raises(CovergridError, match="sensor.min_elevation_deg"):
-        SensorSpec(-5.0)
+        Sensor(-5.0)
     with pytest.raises(CovergridError, match="sensor.max_off_nadir_deg"):
-        SensorSpec(10.0, max_off_nadir_deg=95.0)
+        Sensor(10.0, max_off_nadir_deg=95.0)
     with pytest.raises(CovergridError, match="compute.scheduler"):
         el, grid, sensor = _small()
         compute_coverage(el, EPOCH, 3600.0, 600.0, grid, sensor, scheduler="gpu")
@@ -178,13 +181,13 @@ def test_span_and_step_errors():
 
 def test_band_edges_cover_all_rows_once():
     for n_lat, chunk in ((90, None), (90, 7), (1, None), (5, 100)):
-        b = band_edges(n_lat, chunk)
+        b = row_bands(n_lat, chunk)
         assert b[0][0] == 0 and b[-1][1] == n_lat
         assert all(x[1] == y[0] for x, y in zip(b[:-1], b[1:], strict=True))
 
 
 def test_every_dataset_states_the_model_limits():
-    from covergrid.metrics import MODEL_LIMITS
+    from covergrid.compute.metrics import MODEL_LIMITS
 
     el, grid, sensor = _small()
     ds = compute_coverage(el, EPOCH, 3600.0, 600.0, grid, sensor)
@@ -197,11 +200,11 @@ def test_position_blocks_do_not_change_results(monkeypatch):
     """The engine propagates in blocks of samples to bound memory; splitting the span into
     many short blocks (the last one shorter) must give the same Dataset as one block,
     refined gap boundaries included (they use positions from the previous block)."""
-    import covergrid.engine as engine
+    import covergrid.compute.span as span
 
     el, grid, sensor = _small()
     one = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous")
-    monkeypatch.setattr(engine, "_POSITION_BLOCK_BYTES", 24 * len(el) * 7)  # 7 samples
+    monkeypatch.setattr(span, "POSITION_BLOCK_BYTES", 24 * len(el) * 7)  # 7 samples
     many = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous")
     # The propagator advances its angles by recurrence within one call, so positions from
     # other block boundaries differ in the last bits (~1e-12 relative): sampled values are
@@ -215,3 +218,27 @@ def test_position_blocks_do_not_change_results(monkeypatch):
                                        err_msg=name)
         else:
             xr.testing.assert_identical(many[name], one[name])
+
+
+def test_event_queue_overflow_is_counted_and_the_band_recomputed(monkeypatch):
+    """A kernel event queue too short for one sample's gap boundaries never drops an event
+    silently: the overflow is counted and the band computed again with a longer queue, so
+    the Dataset equals a run whose queue was long enough from the start."""
+    from covergrid.compute import kernel_state
+
+    el, grid, sensor = _small()
+    ref = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous")
+    real = kernel_state.new_state
+    asked: list[int] = []
+
+    def first_queue_empty(n_cells, nfold_max, n_sat, n_rows, queue_per_cell=2):
+        asked.append(queue_per_cell)
+        # the first attempt gets no room at all for events
+        return real(n_cells, nfold_max, n_sat, n_rows, queue_per_cell if len(asked) > 1 else 0)
+
+    monkeypatch.setattr(kernel_state, "QUEUE_SLACK", 0)
+    monkeypatch.setattr(kernel_state, "new_state", first_queue_empty)
+    got = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous",
+                           chunk_rows=grid.n_lat)
+    assert asked == [2, 8]  # one retry, with a queue four times longer
+    xr.testing.assert_identical(got.drop_attrs(), ref.drop_attrs())

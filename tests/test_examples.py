@@ -24,7 +24,7 @@ def test_there_are_examples():
 @pytest.mark.parametrize("path", EXAMPLES, ids=[p.stem for p in EXAMPLES])
 def test_example_study_is_valid(path):
     study = covergrid.load_study(path)
-    assert len(study.to_elements()) >= 1
+    assert len(covergrid.resolve(study).elements) >= 1
     est = covergrid.estimate(study)
     assert est["cells"] > 0 and est["visits"] > 0
     schema = json.loads((REPO / "configs" / "schema.json").read_text(encoding="utf-8"))

@@ -22,23 +22,16 @@ from pathlib import Path
 import pytest
 import xarray as xr
 
+from conftest import TINY_STUDY, contract_dataset
 from covergrid import cli, io
-from covergrid.engine import GridSpec, SensorSpec, compute_coverage
+from covergrid.compute.engine import compute_coverage
+from covergrid.compute.grid import GridSpec
+from covergrid.compute.sensor import Sensor
 from covergrid.orbits.walker import walker_delta
 
 EPOCH = "2027-03-14T06:00:00Z"
 RE = 6378.137  # WGS 84 equatorial radius [km] (NIMA TR8350.2, 3rd ed., table 3.1)
 
-TINY = """\
-study: tiny-ring
-epoch: 2031-03-20T00:00:00Z
-duration_h: 2
-step_s: 60
-constellation:
-  - walker: {pattern: delta, total: 6, planes: 3, phasing: 1}
-    template: {altitude_km: 1200, inclination_deg: 55}
-grid: {resolution_deg: 10}
-"""
 
 #: How long the test waits for a killed worker to be replaced, or for the first band to
 #: finish [s]: far above the 1-3 s a worker takes to start and load the compiled kernel
@@ -47,7 +40,7 @@ WORKER_WAIT_S = 240.0
 
 
 def _band_keys(keys) -> set[str]:
-    return {str(k) for k in keys if "_band_task" in str(k)}
+    return {str(k) for k in keys if "band_task" in str(k)}
 
 
 @pytest.mark.slow  # a 2-worker cluster, one worker killed and restarted: about 10 s
@@ -57,7 +50,7 @@ def test_a_worker_killed_mid_run_changes_nothing():
     is identical to a threaded run."""
     distributed = pytest.importorskip("distributed")
     el = walker_delta(240, 12, 1, a_km=RE + 800.0, i_rad=math.radians(53.0))
-    args = (el, EPOCH, 86400.0, 30.0, GridSpec(2.0), SensorSpec(10.0))
+    args = (el, EPOCH, 86400.0, 30.0, GridSpec(2.0), Sensor(10.0))
     chunk_rows = 3  # 30 bands of ~0.1-0.3 s each: the run lasts seconds after the first band
     ref = compute_coverage(*args, chunk_rows=chunk_rows, scheduler="threads")
 
@@ -133,7 +126,7 @@ def test_an_unwritable_output_folder_is_exit_2_before_computing(tmp_path):
     """A real process is denied by the folder's permission bits (mode 0555). Root ignores
     permission bits, so as root the command runs without CAP_DAC_OVERRIDE."""
     study = tmp_path / "study.yaml"
-    study.write_text(TINY, encoding="utf-8")
+    study.write_text(TINY_STUDY, encoding="utf-8")
     locked = tmp_path / "locked"
     locked.mkdir()
     locked.chmod(0o555)
@@ -171,7 +164,7 @@ def test_a_file_system_that_fills_up_is_exit_2_and_no_partial_file(tmp_path):
                     "in-process disk-full test below covers the same path")
     try:
         study = tmp_path / "study.yaml"
-        study.write_text(TINY, encoding="utf-8")
+        study.write_text(TINY_STUDY, encoding="utf-8")
         proc = _covergrid(["run", str(study), "--out", str(where / "out"), "--no-maps",
                            "--quiet"])
         line = _one_error_line(proc)
@@ -188,7 +181,7 @@ def test_disk_full_during_a_later_file_is_exit_2_and_no_partial_file(tmp_path, c
     """The disk fills while the second output is flushed: exit 2, one message, the first
     output complete, nothing at the second's final path and no temporary left."""
     study = tmp_path / "study.yaml"
-    study.write_text(TINY, encoding="utf-8")
+    study.write_text(TINY_STUDY, encoding="utf-8")
     real_fsync = os.fsync
     calls = []
 
@@ -199,7 +192,7 @@ def test_disk_full_during_a_later_file_is_exit_2_and_no_partial_file(tmp_path, c
             raise OSError(errno.ENOSPC, "No space left on device")
         return real_fsync(fd)
 
-    monkeypatch.setattr(io.os, "fsync", fsync_then_full)
+    monkeypatch.setattr(io.atomic.os, "fsync", fsync_then_full)
     out = tmp_path / "out"
     assert cli.main(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]) == 2
     err = capsys.readouterr().err
@@ -215,7 +208,6 @@ def test_disk_full_during_a_later_file_is_exit_2_and_no_partial_file(tmp_path, c
 def test_a_netcdf_library_failure_is_a_clear_error_and_nothing_lands(tmp_path, monkeypatch):
     """netCDF-C reports failed writes as RuntimeError without an errno; with free space
     left it is reported as the library's failure, not as a full disk, and nothing lands."""
-    from _contract_dataset import contract_dataset
 
     def fails(self, path, **kwargs):
         Path(path).write_bytes(b"\x89HDF\r\n\x1a\n")  # a partial start of a file

@@ -8,9 +8,9 @@ import numpy as np
 import pytest
 from pyproj import Geod
 
+from covergrid.compute.grid import Grid, GridSpec, ellipsoid_area_km2
 from covergrid.earth.frames import geodetic_to_ecef, up_vector
 from covergrid.errors import CovergridError
-from covergrid.grid import Grid, GridSpec, ellipsoid_area_km2
 
 # WGS 84 surface area, 510,065,621.724 km^2 (Moritz, "Geodetic Reference System 1980",
 # Bull. Geod. 54, 1980, table of derived constants, for GRS 80; WGS 84 differs in the 10th

@@ -13,22 +13,10 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from _contract_dataset import contract_dataset
+from conftest import compliance_report, contract_dataset
 from covergrid import io
 
 VENV_BIN = Path(sys.executable).parent
-
-
-def compliance_report(path: Path) -> dict:
-    """Run the IOOS compliance checker's CF 1.8 test on a file; return its JSON report."""
-    exe = VENV_BIN / "compliance-checker"
-    if not exe.exists():
-        pytest.skip("compliance-checker is not installed in this environment")
-    out = path.with_suffix(".cc.json")
-    proc = subprocess.run([str(exe), "--test=cf:1.8", "--format=json", "-o", str(out), str(path)],
-                          capture_output=True, text=True, timeout=120, check=False)
-    assert out.exists(), proc.stderr
-    return json.loads(out.read_text())["cf:1.8"]
 
 
 def _leftovers(folder: Path) -> list[str]:
@@ -73,7 +61,7 @@ def test_json_csv_yaml_are_strict_and_atomic(tmp_path):
     io.write_yaml({"k": [1, 2]}, tmp_path / "s.yaml")
     assert (tmp_path / "s.yaml").read_text() == "k:\n- 1\n- 2\n"
     mode = (tmp_path / "s.json").stat().st_mode & 0o777
-    assert mode == 0o666 & ~io._UMASK  # not mkstemp's private 0600
+    assert mode == 0o666 & ~io.atomic._UMASK  # not mkstemp's private 0600
     assert _leftovers(tmp_path) == []
 
 
@@ -91,7 +79,7 @@ def test_disk_full_is_a_clear_error_and_nothing_lands(tmp_path, monkeypatch):
     def full(fd):
         raise OSError(errno.ENOSPC, "No space left on device")
 
-    monkeypatch.setattr(io.os, "fsync", full)
+    monkeypatch.setattr(io.atomic.os, "fsync", full)
     with pytest.raises(io.OutputError, match=r"summary.json: cannot write: no space left"):
         io.write_json({"a": 1}, tmp_path / "summary.json")
     assert list(tmp_path.iterdir()) == []

@@ -11,11 +11,15 @@ import math
 import numpy as np
 import pytest
 
-from bruteforce import cell_centres, metrics_from_visibility, visibility
+from conftest import cell_centres, metrics_from_visibility, visibility
+from covergrid.compute.engine import compute_coverage
+from covergrid.compute.grid import GridSpec
+from covergrid.compute.metrics import METRICS
+from covergrid.compute.sensor import Sensor
+from covergrid.compute.span import count_steps
 from covergrid.earth.time import parse_epoch
-from covergrid.engine import GridSpec, SensorSpec, compute_coverage, n_samples
-from covergrid.metrics import METRICS
-from covergrid.orbits.walker import ElementSet, from_keplerian, walker_delta, walker_star
+from covergrid.orbits.element_set import ElementSet
+from covergrid.orbits.walker import from_keplerian, walker_delta, walker_star
 
 RE = 6378.137
 EPOCH = parse_epoch("2027-03-14T06:00:00Z")
@@ -41,13 +45,13 @@ def _case_elements(name):
 
 CASES = [
     # name, grid, sensor, span (s), step (s)
-    ("delta_6_3_1", GridSpec(10.0), SensorSpec(10.0), 6 * 3600.0, 120.0),
-    ("star_polar", GridSpec(6.0), SensorSpec(5.0, max_off_nadir_deg=55.0), 4 * 3600.0, 60.0),
-    ("star_polar", GridSpec(5.0, -30.0, 60.0), SensorSpec(0.0, max_range_km=2500.0), 3 * 3600.0,
+    ("delta_6_3_1", GridSpec(10.0), Sensor(10.0), 6 * 3600.0, 120.0),
+    ("star_polar", GridSpec(6.0), Sensor(5.0, max_off_nadir_deg=55.0), 4 * 3600.0, 60.0),
+    ("star_polar", GridSpec(5.0, -30.0, 60.0), Sensor(0.0, max_range_km=2500.0), 3 * 3600.0,
      90.0),
-    ("eccentric", GridSpec(9.0), SensorSpec(20.0), 12 * 3600.0, 300.0),
-    ("high_polar", GridSpec(4.0), SensorSpec(0.0), 4 * 3600.0, 120.0),
-    ("delta_6_3_1", GridSpec(3.0, 30.0, 90.0), SensorSpec(15.0, 40.0, 3000.0), 2 * 3600.0, 60.0),
+    ("eccentric", GridSpec(9.0), Sensor(20.0), 12 * 3600.0, 300.0),
+    ("high_polar", GridSpec(4.0), Sensor(0.0), 4 * 3600.0, 120.0),
+    ("delta_6_3_1", GridSpec(3.0, 30.0, 90.0), Sensor(15.0, 40.0, 3000.0), 2 * 3600.0, 60.0),
 ]
 
 
@@ -58,7 +62,7 @@ def test_kernel_equals_brute_force(case):
     ds = compute_coverage(el, EPOCH, span, step, grid, sensor, nfold_max=3, chunk_rows=4,
                           scheduler="synchronous", refine_transitions=False)
     lat, lon = cell_centres(grid.resolution_deg, grid.lat_min_deg, grid.lat_max_deg)
-    vis = visibility(el, EPOCH, n_samples(span, step), step, lat, lon,
+    vis = visibility(el, EPOCH, count_steps(span, step), step, lat, lon,
                      sensor.min_elevation_deg, sensor.max_off_nadir_deg, sensor.max_range_km)
     assert vis.any() and not vis.all(), "a case must have both seen and unseen samples"
     ref = metrics_from_visibility(vis, step, nfold_max=3)
@@ -79,7 +83,7 @@ def test_handover_at_one_sample_opens_no_gap():
         a_km=np.full(2, a), e=np.zeros(2), i_rad=np.full(2, math.radians(45.0)),
         raan_rad=np.zeros(2), argp_rad=np.zeros(2), M_rad=np.array([0.0, dm]), ids=("A", "B"))
     grid = GridSpec(5.0)
-    sensor = SensorSpec(10.0)
+    sensor = Sensor(10.0)
     ds = compute_coverage(el, EPOCH, 3 * 3600.0, step, grid, sensor, scheduler="synchronous",
                           refine_transitions=False)
     lat, lon = cell_centres(5.0)
@@ -90,12 +94,12 @@ def test_handover_at_one_sample_opens_no_gap():
 
 
 def test_never_seen_and_always_seen_cells():
-    """Edge conventions (covergrid.metrics): a never-seen cell has one gap equal to the span;
-    a geostationary satellite's sub-point is always seen, with no gap and one pass."""
+    """Edge conventions (covergrid.compute.metrics): a never-seen cell has one gap equal to the
+    span; a geostationary satellite's sub-point is always seen, with no gap and one pass."""
     geo = from_keplerian([42164.17], [0.0], [0.0], [0.0], [0.0], mean_anomaly_rad=[0.0],
                          ids=["GEO"])
     span = 6 * 3600.0
-    ds = compute_coverage(geo, EPOCH, span, 600.0, GridSpec(10.0), SensorSpec(5.0),
+    ds = compute_coverage(geo, EPOCH, span, 600.0, GridSpec(10.0), Sensor(5.0),
                           scheduler="synchronous")
     seen = ds.coverage_fraction.values == 1.0
     unseen = ds.coverage_fraction.values == 0.0
@@ -110,9 +114,9 @@ def test_never_seen_and_always_seen_cells():
 
 
 REFINE_CASES = [
-    ("delta_6_3_1", SensorSpec(10.0)),
-    ("star_polar", SensorSpec(0.0, max_range_km=2500.0)),
-    ("star_polar", SensorSpec(5.0, max_off_nadir_deg=55.0)),
+    ("delta_6_3_1", Sensor(10.0)),
+    ("star_polar", Sensor(0.0, max_range_km=2500.0)),
+    ("star_polar", Sensor(5.0, max_off_nadir_deg=55.0)),
 ]
 
 

@@ -28,23 +28,25 @@ import sys
 
 import pytest
 
-from covergrid import engine
+from covergrid.compute.span import POSITION_BLOCK_BYTES
 
 MIB = 2**20
 #: Growth allowed from 1 to 8 days [bytes]: two position blocks and allocator slack
 #: (module docstring).
-ALLOWED_GROWTH_BYTES = 2 * engine._POSITION_BLOCK_BYTES + 16 * MIB
+ALLOWED_GROWTH_BYTES = 2 * POSITION_BLOCK_BYTES + 16 * MIB
 
 _RUN = """\
 import math, resource, sys
-from covergrid.engine import GridSpec, SensorSpec, compute_coverage
+from covergrid.compute.engine import compute_coverage
+from covergrid.compute.grid import GridSpec
+from covergrid.compute.sensor import Sensor
 from covergrid.orbits.walker import walker_delta
 n_sat, planes, res_deg, min_el_deg, days = (int(sys.argv[1]), int(sys.argv[2]),
                                             float(sys.argv[3]), float(sys.argv[4]),
                                             float(sys.argv[5]))
 el = walker_delta(n_sat, planes, 1, a_km=6378.137 + 1000.0, i_rad=math.radians(53.0))
 ds = compute_coverage(el, "2027-01-01T00:00:00Z", days * 86400.0, 60.0, GridSpec(res_deg),
-                      SensorSpec(min_el_deg), scheduler="synchronous")
+                      Sensor(min_el_deg), scheduler="synchronous")
 assert ds.attrs["covergrid_n_steps"] == round(days * 1440)
 print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024)  # Linux: KiB
 """

@@ -6,8 +6,9 @@ import socket
 
 import pytest
 
-from covergrid import cli, pipeline
-from test_cli import TINY, _write
+from conftest import TINY_STUDY, write_study
+from covergrid import cli
+from covergrid.pipeline import schedulers
 
 
 def _closed_loopback_port() -> int:
@@ -20,8 +21,8 @@ def _closed_loopback_port() -> int:
 @pytest.mark.slow  # distributed's connect retries take several seconds even when refused
 def test_unreachable_scheduler_is_status_2_naming_compute_scheduler(tmp_path, capsys,
                                                                     monkeypatch):
-    monkeypatch.setattr(pipeline, "_CONNECT_TIMEOUT_S", 1)  # refused at once; keep the test fast
-    study = _write(tmp_path, TINY)
+    monkeypatch.setattr(schedulers, "CONNECT_TIMEOUT_S", 1)  # refused at once; keep the test fast
+    study = write_study(tmp_path, TINY_STUDY)
     address = f"tcp://127.0.0.1:{_closed_loopback_port()}"
     out = tmp_path / "o"
     status = cli.main(["run", str(study), "--out", str(out), "--scheduler", address, "--quiet"])

@@ -9,11 +9,13 @@ import math
 import pytest
 import yaml
 
-from covergrid import sizing
-from covergrid.config import parse_study
 from covergrid.errors import StudyError
-from covergrid.orbits.design import period_s
-from covergrid.sweep import Design, EvalContext, evaluate_design, walker_options
+from covergrid.orbits.special import period_s
+from covergrid.study import parse_study
+from covergrid.trade import sizing
+from covergrid.trade.designs import WalkerDesign, walker_options
+from covergrid.trade.evaluate import evaluate_design
+from covergrid.trade.space import evaluation_context
 
 # Ballard, "Rosette Constellations of Earth Satellites", IEEE Trans. AES-16(5), 1980,
 # Table I: the best pattern for continuous single coverage of the whole Earth with five
@@ -89,14 +91,14 @@ def test_pruning_keeps_every_design_that_passes_at_full_resolution():
              (revisit, [(6, "all"), (8, "all"), (9, "all")], 55.0, 1200.0, 10.0)]
     passed_full = 0
     for study, totals, inc, alt, el in cases:
-        full = EvalContext.from_study(study)
+        full = evaluation_context(study)
         coarse = sizing.coarse_context(study)
         assert (coarse.resolution_deg, coarse.step_s) != (full.resolution_deg, full.step_s)
         tol = study.sizing.coarse.area_tolerance
         af = study.requirement.area_fraction
         for total, planes in totals:
             for p, f in walker_options(total, planes, "all"):
-                d = Design("delta", total, p, f, alt, inc, el)
+                d = WalkerDesign("delta", total, p, f, alt, inc, el)
                 row = evaluate_design(d, full)
                 if row["meets"]:
                     passed_full += 1
@@ -110,10 +112,10 @@ def test_is_pruned_rule_and_loss_cases():
     assert sizing.is_pruned({"area_fraction_met": 0.97}, 1.0, 0.02)
     assert not sizing.is_pruned({"area_fraction_met": 0.98}, 1.0, 0.02)
     assert sizing.is_pruned({"area_fraction_met": math.nan}, 0.5, 0.02)
-    d = Design("delta", 12, 3, 1, 1000.0, 55.0, 10.0)
+    d = WalkerDesign("delta", 12, 3, 1, 1000.0, 55.0, 10.0)
     assert sizing.loss_cases(d, "one_per_plane") == [0, 4, 8]
     assert sizing.loss_cases(d, "all") == list(range(12))
-    lost = Design("delta", 12, 3, 1, 1000.0, 55.0, 10.0, lost=4)
+    lost = WalkerDesign("delta", 12, 3, 1, 1000.0, 55.0, 10.0, lost=4)
     assert lost.lost_id == "S-P02-01" and len(lost.elements()) == 11
     assert "S-P02-01" not in lost.elements().ids
 
@@ -151,9 +153,9 @@ def test_robust_to_one_loss_reports_the_worst_loss():
     assert best["total"] >= plain["total"]
     # the reported margin is the worst single loss: recompute every loss of the answer
     study = _revisit()
-    full = EvalContext.from_study(study)
-    d = Design("delta", best["total"], best["planes"], best["phasing"], 1400.0, 55.0, 10.0)
-    rows = [evaluate_design(Design(**{**d.__dict__, "lost": k}), full)
+    full = evaluation_context(study)
+    d = WalkerDesign("delta", best["total"], best["planes"], best["phasing"], 1400.0, 55.0, 10.0)
+    rows = [evaluate_design(WalkerDesign(**{**d.__dict__, "lost": k}), full)
             for k in range(d.total)]
     worst = min(rows, key=lambda r: r["margin"])
     assert best["margin"] == worst["margin"] >= 0.0
@@ -206,8 +208,8 @@ def test_size_command_writes_outputs_and_exit_status(tmp_path, capsys):
 def test_example_trade_studies_are_valid(name):
     from pathlib import Path
 
-    from covergrid.config import load_study
-    from covergrid.sweep import sweep_designs
+    from covergrid.study import load_study
+    from covergrid.trade.space import sweep_designs
 
     study = load_study(Path(__file__).resolve().parents[1] / "configs" / name)
     if study.sweep is not None:

@@ -8,7 +8,7 @@ import math
 import pytest
 
 from covergrid.errors import CovergridError
-from covergrid.store import ResultStore, result_key, software_fingerprint
+from covergrid.trade.store import ResultStore, result_key, software_fingerprint
 
 INPUTS = {"design": {"total": 12, "planes": 3, "phasing": 1, "altitude_km": 550.0},
           "context": {"step_s": 60.0, "resolution_deg": 2.0, "epoch": "2030-01-01T00:00:00Z",
@@ -73,3 +73,39 @@ def test_key_must_be_hex_so_no_path_escapes(tmp_path):
         store.put("../../etc/passwd", {}, {})
     with pytest.raises(CovergridError, match="64 hex digits"):
         store.get("ABC")
+
+
+def test_fingerprint_follows_the_modules_the_evaluation_imports():
+    # derived from the sources, not a hand-kept list: the kernel, the engine and the metrics
+    # decide a row and are found through the evaluation module's imports
+    from covergrid.trade.store import result_modules
+
+    names = [n for n, _ in result_modules()]
+    for needed in ("covergrid.trade.evaluate", "covergrid.compute.engine",
+                   "covergrid.compute.kernel", "covergrid.compute.kernel_state",
+                   "covergrid.compute.metrics", "covergrid.orbits.j2",
+                   "covergrid.orbits.j2_backends", "covergrid.earth.time",
+                   "covergrid.constants"):
+        assert needed in names
+    # what only draws or writes is not part of the key
+    assert not any(n.startswith(("covergrid.render", "covergrid.cli", "covergrid.study"))
+                   for n in names)
+
+
+def test_fingerprint_fails_loudly_when_a_source_is_missing(monkeypatch):
+    import importlib.util
+
+    from covergrid.trade import store
+
+    real = importlib.util.find_spec
+
+    def no_kernel_source(name, *args):
+        spec = real(name, *args)
+        if name == "covergrid.compute.kernel":
+            spec = importlib.util.spec_from_loader(name, loader=None, origin=None)
+        return spec
+
+    monkeypatch.setattr(store.importlib.util, "find_spec", no_kernel_source)
+    with pytest.raises(CovergridError, match="no Python source for module "
+                       "'covergrid.compute.kernel'"):
+        software_fingerprint()

@@ -3,7 +3,7 @@
 The hand-built Dataset has spherical cell areas, so the share of the area between two
 latitudes is (sin phi2 - sin phi1) / 2 (Archimedes' hat-box theorem: a spherical zone's
 area is 2 pi R h; common knowledge of geometry). Every expected value below follows from
-that formula and the quantile definition in covergrid.summary.
+that formula and the quantile definition in covergrid.compute.summary.
 """
 
 from __future__ import annotations
@@ -13,8 +13,9 @@ import math
 import numpy as np
 import pytest
 
-from _contract_dataset import SPHERE_RADIUS_M, contract_dataset
-from covergrid.summary import (
+from conftest import SPHERE_RADIUS_M, contract_dataset
+from covergrid.compute.requirement import Requirement
+from covergrid.compute.summary import (
     CSV_COLUMNS,
     area_statistics,
     band_statistics,
@@ -170,7 +171,7 @@ def test_verdict_refuses_bad_arguments():
 def test_summarise_lists_every_metric_and_fold():
     ds = contract_dataset(10.0, nfold_max=2)
     s = summarise(ds, band_width_deg=30.0,
-                  requirement={"metric": "max_gap", "at_most": 7200.0, "area_fraction": 0.9})
+                  requirement=Requirement("max_gap", at_most=7200.0, area_fraction=0.9))
     names = [(m["metric"], m["k"]) for m in s["metrics"]]
     assert ("nfold_fraction", 1) in names and ("nfold_fraction", 2) in names
     assert ("cell_area", None) not in names and ("lat_bnds", None) not in names

@@ -15,11 +15,16 @@ import pytest
 import xarray as xr
 import yaml
 
-from covergrid import sweep
-from covergrid.config import parse_study
+import covergrid
 from covergrid.errors import StudyError
-from covergrid.pipeline import run_study
-from covergrid.store import ResultStore
+from covergrid.pipeline.run import run_study
+from covergrid.study import parse_study
+from covergrid.trade import runner
+from covergrid.trade.designs import WalkerDesign
+from covergrid.trade.evaluate import STATISTICS, evaluate_design, row_columns
+from covergrid.trade.space import evaluation_context, sweep_designs
+from covergrid.trade.store import ResultStore
+from covergrid.trade.sweep import run_sweep
 
 # An invented scenario: a small regional-revisit trade on a coarse grid (fast).
 BASE = {
@@ -46,7 +51,7 @@ def _study(**changes):
 
 
 def test_designs_cover_every_valid_combination():
-    designs = sweep.sweep_designs(_study())
+    designs = sweep_designs(_study())
     # planes all = divisors, phasing all = 0..P-1: T=6 -> 1+2+3+6, T=8 -> 1+2+4+8, two altitudes
     assert len(designs) == 2 * ((1 + 2 + 3 + 6) + (1 + 2 + 4 + 8))
     assert {(d.total, d.planes, d.phasing) for d in designs} >= {(6, 6, 5), (8, 4, 3), (8, 1, 0)}
@@ -59,7 +64,7 @@ def test_designs_cover_every_valid_combination():
 def test_ranges_and_lists_skip_invalid_patterns():
     s = _study(sweep={"inclination_deg": {"from": 40, "to": 60, "step": 10}, "total": 12,
                       "planes": [3, 5, 4], "phasing": [0, 3], "min_elevation_deg": [5, 10]})
-    designs = sweep.sweep_designs(s)
+    designs = sweep_designs(s)
     assert sorted({d.inclination_deg for d in designs}) == [40.0, 50.0, 60.0]
     # 5 does not divide 12 and phasing 3 is not below 3 planes: 12/3/0, 12/4/0, 12/4/3
     assert sorted({(d.planes, d.phasing) for d in designs}) == [(3, 0), (4, 0), (4, 3)]
@@ -68,7 +73,7 @@ def test_ranges_and_lists_skip_invalid_patterns():
 
 def test_no_valid_pattern_is_refused():
     with pytest.raises(StudyError, match="sweep"):
-        sweep.sweep_designs(_study(sweep={"total": 7, "planes": [2, 3]}))
+        sweep_designs(_study(sweep={"total": 7, "planes": [2, 3]}))
 
 
 def test_sweep_needs_one_walker_group():
@@ -79,7 +84,7 @@ def test_sweep_needs_one_walker_group():
         parse_study(data)
 
 
-def _single_study(design: sweep.Design):
+def _single_study(design: WalkerDesign):
     data = json.loads(json.dumps(BASE))
     del data["sweep"]
     data["constellation"] = [{"walker": {"pattern": design.pattern, "total": design.total,
@@ -93,16 +98,16 @@ def _single_study(design: sweep.Design):
 def test_sweep_rows_equal_single_runs_of_the_same_designs():
     study = _study(sweep={"altitude_km": [1000.0, 1400.0], "total": [6], "planes": [3, 6],
                           "phasing": [1], "min_elevation_deg": [10.0, 20.0]})
-    result = sweep.run_sweep(study, scheduler="threads")
+    result = run_sweep(study, scheduler="threads")
     assert result.computed == len(result.rows) == 8
     for row in result.rows[::3]:
-        design = sweep.Design("delta", row["total"], row["planes"], row["phasing"],
+        design = WalkerDesign("delta", row["total"], row["planes"], row["phasing"],
                               row["altitude_km"], row["inclination_deg"],
                               row["min_elevation_deg"])
         single = run_study(_single_study(design))  # the pipeline's own run (several bands)
         for m in single.summary["metrics"]:
             prefix = m["metric"] if m["k"] is None else f"{m['metric']}_k{m['k']}"
-            for stat in sweep.STATISTICS:
+            for stat in STATISTICS:
                 # the same cells summed in the same order: equal to the last bit
                 assert row[f"{prefix}_{stat}"] == m["global"][stat], (prefix, stat)
         v = single.summary["requirement"]
@@ -112,8 +117,8 @@ def test_sweep_rows_equal_single_runs_of_the_same_designs():
 
 def test_interrupted_sweep_resumes_with_only_the_missing_designs(tmp_path, monkeypatch):
     study = _study()
-    n = len(sweep.sweep_designs(study))
-    real = sweep.evaluate_design
+    n = len(sweep_designs(study))
+    real = evaluate_design
     calls = []
 
     def interrupted(design, context):
@@ -122,9 +127,9 @@ def test_interrupted_sweep_resumes_with_only_the_missing_designs(tmp_path, monke
         calls.append(design)
         return real(design, context)
 
-    monkeypatch.setattr(sweep, "evaluate_design", interrupted)
+    monkeypatch.setattr(runner, "evaluate_design", interrupted)
     with pytest.raises(KeyboardInterrupt):
-        sweep.run_sweep(study, tmp_path)
+        run_sweep(study, tmp_path)
     assert len(ResultStore(tmp_path / "sweep_test" / "store")) == 5
     assert not (tmp_path / "sweep_test" / "sweep.csv").exists()
 
@@ -134,35 +139,35 @@ def test_interrupted_sweep_resumes_with_only_the_missing_designs(tmp_path, monke
         computed.append(design)
         return real(design, context)
 
-    monkeypatch.setattr(sweep, "evaluate_design", counting)
-    resumed = sweep.run_sweep(study, tmp_path, figures=False)
+    monkeypatch.setattr(runner, "evaluate_design", counting)
+    resumed = run_sweep(study, tmp_path, figures=False)
     assert resumed.computed == len(computed) == n - 5
     assert not set(calls) & set(computed)
     # a second rerun computes nothing, and gives the same rows
-    again = sweep.run_sweep(study, tmp_path, figures=False)
+    again = run_sweep(study, tmp_path, figures=False)
     assert again.computed == 0 and again.rows == resumed.rows
     # a changed study (other grid) never reuses the stored rows
     coarser = _study(grid={"resolution_deg": 10.0})
-    assert sweep.run_sweep(coarser, tmp_path, figures=False).computed == n
+    assert run_sweep(coarser, tmp_path, figures=False).computed == n
 
 
 def test_changed_step_sensor_or_span_changes_every_key():
     study = _study()
-    d = sweep.sweep_designs(study)[0]
-    from covergrid.store import result_key
+    d = sweep_designs(study)[0]
+    from covergrid.trade.store import result_key
 
-    base = result_key(sweep.EvalContext.from_study(study).inputs(d))
+    base = result_key(evaluation_context(study).inputs(d))
     for change in ({"step_s": 30.0}, {"duration_h": 12.0}, {"epoch": "2031-05-02T00:00:00Z"},
                    {"sensor": {"min_elevation_deg": 10.0, "max_off_nadir_deg": 50.0}},
                    {"requirement": {"metric": "max_gap", "at_most": 3600.0,
                                     "area_fraction": 0.9}}):
         other = _study(**change)
-        assert result_key(sweep.EvalContext.from_study(other).inputs(d)) != base, change
+        assert result_key(evaluation_context(other).inputs(d)) != base, change
 
 
 def test_outputs_table_netcdf_and_trade_figures(tmp_path):
     study = _study()
-    result = sweep.run_sweep(study, tmp_path)
+    result = run_sweep(study, tmp_path)
     folder = tmp_path / "sweep_test"
     names = {p.relative_to(folder).as_posix() for p in result.files}
     assert {"sweep.csv", "sweep.nc", "study.resolved.yaml"} <= names
@@ -170,7 +175,7 @@ def test_outputs_table_netcdf_and_trade_figures(tmp_path):
         assert {f"trades/sweep/{stem}.png", f"trades/sweep/{stem}.pdf"} <= names
     lines = (folder / "sweep.csv").read_text().splitlines()
     assert len(lines) == 1 + len(result.rows)
-    assert lines[0].split(",") == sweep.row_columns(study.nfold_max, True)
+    assert lines[0].split(",") == row_columns(covergrid.resolve(study).nfold_max, True)
     with xr.open_dataset(folder / "sweep.nc") as ds:
         assert ds.sizes["design"] == len(result.rows)
         assert ds["max_gap_p95"].attrs["units"] == "s"
@@ -209,7 +214,7 @@ def test_stopped_sweep_process_loses_nothing_finished(tmp_path, sig):
     path.write_text(yaml.safe_dump(SLOW_SWEEP))
     out = tmp_path / "out"
     store = out / "stopped" / "store"
-    env = {**os.environ, "PYTHONPATH": str(Path(sweep.__file__).resolve().parents[1])}
+    env = {**os.environ, "PYTHONPATH": str(Path(covergrid.__file__).resolve().parents[1])}
     proc = subprocess.Popen(_cli("sweep", str(path), "--out", str(out), "--quiet"), env=env,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     deadline = time.monotonic() + 120
@@ -255,14 +260,14 @@ def test_refine_transitions_reaches_the_engine_and_the_store_key():
     sweeps alike, and a sweep never reuses rows computed with the other setting."""
     import numpy as np
 
-    from covergrid.store import result_key
+    from covergrid.trade.store import result_key
 
     on, off = _study(), _study(refine_transitions=False)
     gaps_off = run_study(off).dataset.max_gap.values
     assert np.all(np.mod(gaps_off, off.step_s) == 0.0)
     gaps_on = run_study(on).dataset.max_gap.values
     assert np.any(np.mod(gaps_on, on.step_s) != 0.0)
-    design = sweep.sweep_designs(on)[0]
-    k_on = result_key(sweep.EvalContext.from_study(on).inputs(design))
-    k_off = result_key(sweep.EvalContext.from_study(off).inputs(design))
+    design = sweep_designs(on)[0]
+    k_on = result_key(evaluation_context(on).inputs(design))
+    k_off = result_key(evaluation_context(off).inputs(design))
     assert k_on != k_off

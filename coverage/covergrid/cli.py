@@ -1,7 +1,8 @@
-"""The ``covergrid`` command line: a thin layer over :mod:`covergrid.pipeline`.
+"""The ``covergrid`` command line: a thin layer over the Python API.
 
-Commands: ``run`` (compute a study and write its outputs), ``sweep`` and ``size`` (trade
-studies, :mod:`covergrid.sweep`, :mod:`covergrid.sizing`), ``check`` (validate and estimate
+Commands: ``run`` (compute a study and write its outputs, :mod:`covergrid.pipeline.run`),
+``sweep`` and ``size`` (trade studies, :mod:`covergrid.trade.sweep`,
+:mod:`covergrid.trade.sizing`), ``check`` (validate and estimate
 without computing), ``elements`` (state vector <-> Keplerian elements for one orbit) and
 ``schema`` (print the study file's JSON Schema).
 """
@@ -151,7 +152,8 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
-    from covergrid.pipeline import load_study, run_study
+    from covergrid.pipeline.run import run_study
+    from covergrid.study.loading import load_study
 
     study = load_study(args.study)
     result = run_study(study, args.out, progress=not args.quiet, scheduler=args.scheduler,
@@ -179,33 +181,31 @@ def _verdict_text(v: dict) -> str:
 
 def _cmd_trade(args: argparse.Namespace) -> int:
     """``sweep`` and ``size``: exit 0, or 1 when size finds no design meeting the requirement."""
-    from covergrid.config import load_study, parse_study
+    from covergrid.pipeline.run import resolve_for_run
+    from covergrid.study.loading import load_study
 
     study = load_study(args.study)
-    if args.scheduler is not None:
-        data = study.resolved_dict()
-        data["compute"]["scheduler"] = args.scheduler
-        study = parse_study(data, source="--scheduler")
     block = "sweep" if args.command == "sweep" else "sizing"
     if getattr(study, block) is None:
         return _fail(f"{block}: the study file has no {block} block; see the README's study "
                      "file reference")
+    resolved = resolve_for_run(study, args.scheduler)
     if args.command == "sweep":
-        from covergrid.sweep import run_sweep
+        from covergrid.trade.sweep import run_sweep
 
-        res = run_sweep(study, args.out, progress=not args.quiet, figures=not args.no_figures)
+        res = run_sweep(resolved, args.out, progress=not args.quiet, figures=not args.no_figures)
         if not args.quiet:
             met = sum(1 for r in res.rows if r.get("meets") is True)
             print(f"covergrid: {len(res.rows)} designs ({res.computed} computed, "
                   f"{len(res.rows) - res.computed} from the store); wrote {len(res.files or [])} "
                   f"files to {res.out_dir}")
-            if study.requirement is not None:
+            if resolved.requirement is not None:
                 print(f"{met} of {len(res.rows)} designs meet the requirement")
         return EXIT_OK
-    from covergrid.sizing import run_sizing
+    from covergrid.trade.sizing import run_sizing
 
-    sized = run_sizing(study, args.out, progress=not args.quiet, figures=not args.no_figures)
-    sizing_max = study.sizing.total.max if study.sizing is not None else None
+    sized = run_sizing(resolved, args.out, progress=not args.quiet, figures=not args.no_figures)
+    sizing_max = resolved.sizing.total.max if resolved.sizing is not None else None
     if not args.quiet:
         print(f"covergrid: wrote {len(sized.files or [])} files to {sized.out_dir}")
         for r in sized.results:
@@ -224,15 +224,18 @@ def _cmd_trade(args: argparse.Namespace) -> int:
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    from covergrid.pipeline import check_resources, estimate, load_study
+    from covergrid.pipeline.resources import check_resources, estimate
+    from covergrid.study.build import resolve
+    from covergrid.study.loading import load_study
 
     study = load_study(args.study)
-    est = estimate(study)
+    resolved = resolve(study)
+    est = estimate(resolved)
     if args.json:
         print(json.dumps(est, indent=2))
     else:
         print(_estimate_text(study, est))
-    check_resources(study, est)
+    check_resources(resolved, est)
     return EXIT_OK
 
 
@@ -282,13 +285,8 @@ def _cmd_elements(args: argparse.Namespace) -> int:
     import numpy as np
 
     from covergrid.constants import DEG, MU_EARTH_KM3_S2, WGS84_A_KM
-    from covergrid.orbits.elements import (
-        cartesian_to_kepler,
-        kepler_to_cartesian,
-        mean_to_true,
-        true_to_mean,
-        validate_state,
-    )
+    from covergrid.orbits.anomalies import mean_to_true, true_to_mean
+    from covergrid.orbits.elements import cartesian_to_kepler, kepler_to_cartesian, validate_state
 
     mu = MU_EARTH_KM3_S2 if args.mu_km3_s2 is None else args.mu_km3_s2
     if not (math.isfinite(mu) and mu > 0):
@@ -383,7 +381,7 @@ def _table(rows) -> str:
 
 
 def _cmd_schema() -> int:
-    from covergrid.config import export_schema
+    from covergrid.study.loading import export_schema
 
     sys.stdout.write(json.dumps(export_schema(), indent=2) + "\n")
     return EXIT_OK

@@ -35,5 +35,9 @@ class ResourceError(CovergridError):
     """A study would exceed the memory or work available."""
 
 
+class OutputError(CovergridError):
+    """An output cannot be written (folder unwritable, disk full, path outside the root)."""
+
+
 class CovergridWarning(UserWarning):
     """Warnings of our own; the test suite turns them into errors."""

@@ -13,8 +13,8 @@ import math
 
 import numpy as np
 
+from covergrid.compute.grid import Grid
 from covergrid.earth.time import gmst_rad
-from covergrid.grid import Grid
 from covergrid.orbits import j2
 
 

@@ -24,7 +24,9 @@ import time
 
 import xarray as xr
 
-from covergrid.engine import GridSpec, SensorSpec, compute_coverage
+from covergrid.compute.engine import compute_coverage
+from covergrid.compute.grid import GridSpec
+from covergrid.compute.sensor import Sensor
 from covergrid.orbits.walker import walker_delta
 
 RE = 6378.137
@@ -34,7 +36,7 @@ N_WORKERS = 2
 
 def _w2():
     el = walker_delta(1200, 40, 1, a_km=RE + 600.0, i_rad=math.radians(53.0))
-    return el, GridSpec(1.0), SensorSpec(25.0), 24 * 3600.0, 30.0
+    return el, GridSpec(1.0), Sensor(25.0), 24 * 3600.0, 30.0
 
 
 def run() -> dict:

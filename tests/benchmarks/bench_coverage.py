@@ -24,8 +24,11 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from covergrid.engine import GridSpec, SensorSpec, compute_coverage, n_samples  # noqa: E402
-from covergrid.metrics import METRICS  # noqa: E402
+from covergrid.compute.engine import compute_coverage  # noqa: E402
+from covergrid.compute.grid import GridSpec  # noqa: E402
+from covergrid.compute.metrics import METRICS  # noqa: E402
+from covergrid.compute.sensor import Sensor  # noqa: E402
+from covergrid.compute.span import count_steps  # noqa: E402
 from covergrid.orbits.walker import walker_delta  # noqa: E402
 
 RE = 6378.137
@@ -50,7 +53,7 @@ def w1() -> dict:
     from baseline_numpy import coverage_numpy
 
     el = walker_delta(48, 8, 1, a_km=RE + 1000.0, i_rad=math.radians(60.0))
-    grid, sensor, span, step = GridSpec(2.0), SensorSpec(15.0), 12 * 3600.0, 60.0
+    grid, sensor, span, step = GridSpec(2.0), Sensor(15.0), 12 * 3600.0, 60.0
 
     def ours():  # the pure sampled values, which the baseline computes
         return compute_coverage(el, EPOCH, span, step, grid, sensor, refine_transitions=False)
@@ -60,7 +63,7 @@ def w1() -> dict:
 
     def base():
         return coverage_numpy(el, np.datetime64("2027-01-01T00:00:00", "ns"),
-                              n_samples(span, step), step, grid, 15.0)
+                              count_steps(span, step), step, grid, 15.0)
 
     cold, _ = _timed(ours)
     t_ours, ds = _timed(ours, repeat=3)
@@ -79,7 +82,7 @@ def w1() -> dict:
 
 def w2() -> dict:
     el = walker_delta(1200, 40, 1, a_km=RE + 600.0, i_rad=math.radians(53.0))
-    grid, sensor, span, step = GridSpec(1.0), SensorSpec(25.0), 24 * 3600.0, 30.0
+    grid, sensor, span, step = GridSpec(1.0), Sensor(25.0), 24 * 3600.0, 30.0
     small, _ = _timed(lambda: compute_coverage(el[:40] if hasattr(el, "__getitem__") else
                                                el.subset(slice(0, 40)), EPOCH, 600.0, step,
                                                grid, sensor))
@@ -93,7 +96,7 @@ def w2() -> dict:
 def w3() -> dict:
     el = walker_delta(12, 3, 1, a_km=RE + 700.0, i_rad=math.radians(98.0))
     grid = GridSpec(0.25)
-    sensor = SensorSpec(0.0, max_off_nadir_deg=30.0)
+    sensor = Sensor(0.0, max_off_nadir_deg=30.0)
     t, ds = _timed(lambda: compute_coverage(el, EPOCH, 7 * 86400.0, 10.0, grid, sensor))
     return {"bench": "W3", "wall_s": t, "peak_rss_mb": _peak_rss_mb(), "target": "<= 1536 MB",
             "visits": int(ds.visits), "visits_per_s": int(ds.visits) / t,

@@ -21,9 +21,11 @@ import os
 import sys
 import time
 
-from covergrid.config import parse_study
-from covergrid.sizing import size_study
-from covergrid.sweep import EvalContext, _MemoryStore, design_runner, run_designs, sweep_designs
+from covergrid.study import parse_study
+from covergrid.trade.runner import design_runner, run_designs
+from covergrid.trade.sizing import size_study
+from covergrid.trade.space import evaluation_context, sweep_designs
+from covergrid.trade.store import MemoryStore
 
 ALTITUDES_KM = [500.0, 700.0, 900.0, 1100.0, 1300.0, 1500.0]
 INCLINATIONS_DEG = [45.0, 55.0, 65.0, 75.0, 85.0]
@@ -49,11 +51,11 @@ def run(n_subset: int = 120) -> dict:
     designs = sweep_designs(study)
     stride = max(1, len(designs) // n_subset)
     subset = designs[::stride][:n_subset]
-    ctx = EvalContext.from_study(study)
+    ctx = evaluation_context(study)
     with design_runner(study) as runner:
-        run_designs(subset[:2], ctx, _MemoryStore(), runner)  # JIT load / warm-up
+        run_designs(subset[:2], ctx, MemoryStore(), runner)  # JIT load / warm-up
         t0 = time.perf_counter()
-        rows, computed = run_designs(subset, ctx, _MemoryStore(), runner)
+        rows, computed = run_designs(subset, ctx, MemoryStore(), runner)
         wall = time.perf_counter() - t0
     per_min = 60.0 * computed / wall
     mean_sat = sum(d.total for d in subset) / len(subset)

@@ -1,4 +1,5 @@
-"""Tests of covergrid.orbits.design: periods, SSO, repeat ground track, footprint geometry."""
+"""Tests of covergrid.orbits.special and covergrid.orbits.geometry: periods, SSO, repeat
+ground track, footprint geometry."""
 
 from __future__ import annotations
 
@@ -13,7 +14,7 @@ from covergrid.constants import (
     TROPICAL_YEAR_DAYS,
 )
 from covergrid.errors import CovergridError, ElementError
-from covergrid.orbits import design
+from covergrid.orbits import geometry, special
 from covergrid.orbits.j2 import secular_rates
 
 DEG = np.pi / 180.0
@@ -36,30 +37,30 @@ ONE_MILLIMETRE_KM = 1e-6
 def test_half_sidereal_day_orbit_is_near_26560_km():
     # Common practice: the 12-sidereal-hour (GPS-like) circular orbit has a ~ 26,560 km,
     # quoted to four figures, so +-5 km.
-    assert design.semi_major_axis_km(SIDEREAL_DAY_S / 2) == pytest.approx(26560.0, abs=5.0)
+    assert special.semi_major_axis_km(SIDEREAL_DAY_S / 2) == pytest.approx(26560.0, abs=5.0)
 
 
 def test_geostationary_radius_period():
     # Common practice: the geostationary radius 42,164.17 km (from memory) has a period of
     # one sidereal day (86164.0905 s). 0.01 km in a is 0.03 s in T; 0.1 s covers mu rounding.
-    assert design.period_s(42164.17) == pytest.approx(SIDEREAL_DAY_S, abs=0.1)
+    assert special.period_s(42164.17) == pytest.approx(SIDEREAL_DAY_S, abs=0.1)
 
 
 def test_period_mean_motion_inverse_scalar_and_array():
     a = np.array([6778.137, 7178.0, 26560.0, 42164.17])
-    t = design.period_s(a)
-    assert isinstance(design.period_s(7000.0), float)
-    np.testing.assert_allclose(design.semi_major_axis_km(t), a, rtol=1e-14)
-    np.testing.assert_allclose(design.mean_motion_rad_s(a) * t, 2 * np.pi, rtol=1e-14)
+    t = special.period_s(a)
+    assert isinstance(special.period_s(7000.0), float)
+    np.testing.assert_allclose(special.semi_major_axis_km(t), a, rtol=1e-14)
+    np.testing.assert_allclose(special.mean_motion_rad_s(a) * t, 2 * np.pi, rtol=1e-14)
     for k in range(a.size):
-        assert design.period_s(float(a[k])) == t[k]
+        assert special.period_s(float(a[k])) == t[k]
 
 
 def test_period_bad_input():
     with pytest.raises(ElementError, match="a_km"):
-        design.period_s(-1.0)
+        special.period_s(-1.0)
     with pytest.raises(ElementError, match="period_s"):
-        design.semi_major_axis_km([100.0, 0.0])
+        special.semi_major_axis_km([100.0, 0.0])
 
 
 # --------------------------------------------------------------------------------------
@@ -75,7 +76,7 @@ def test_period_bad_input():
     ],
 )
 def test_sun_synchronous_inclination_table(alt_km, i_deg):
-    i_rad = design.sun_synchronous_inclination(R + alt_km)
+    i_rad = special.sun_synchronous_inclination(R + alt_km)
     assert isinstance(i_rad, float)
     assert i_rad == pytest.approx(i_deg * DEG, abs=SSO_TABLE_TOL_RAD)
 
@@ -84,7 +85,7 @@ def test_sun_synchronous_band_and_rate():
     # Common practice: LEO SSO inclinations lie near 97-99.5 deg for 400-1000 km altitude.
     alt = np.linspace(400.0, 1000.0, 13)
     e = np.full_like(alt, 0.01)
-    i = design.sun_synchronous_inclination(R + alt, e)
+    i = special.sun_synchronous_inclination(R + alt, e)
     assert np.all((i > 97.0 * DEG) & (i < 99.5 * DEG))
     assert np.all(np.diff(i) > 0)  # higher orbits need more retrograde planes
     raan_dot, _, _ = secular_rates(R + alt, e, i)
@@ -94,9 +95,9 @@ def test_sun_synchronous_band_and_rate():
 
 def test_sun_synchronous_too_high():
     # Circular orbits above ~12,350 km cannot be sun-synchronous (|cos i| would exceed 1).
-    assert design.sun_synchronous_inclination(12300.0) > 170 * DEG
+    assert special.sun_synchronous_inclination(12300.0) > 170 * DEG
     with pytest.raises(ElementError, match="a_km"):
-        design.sun_synchronous_inclination([7000.0, 13000.0])
+        special.sun_synchronous_inclination([7000.0, 13000.0])
 
 
 # --------------------------------------------------------------------------------------
@@ -111,7 +112,7 @@ def test_repeat_ground_track_landsat_like():
     # Landsat-7/8-like: 233 revolutions in 16 days, i = 98.2 deg, mean a = 7077.7 km
     # (Landsat 7 Science Data Users Handbook, from memory). 1 km covers the printed
     # 0.1 km and the different constants and mean-element definitions of the source.
-    a = design.repeat_ground_track_a(233, 16, 98.2 * DEG)
+    a = special.repeat_ground_track_a(233, 16, 98.2 * DEG)
     assert a == pytest.approx(7077.7, abs=1.0)
     # The defining equation holds: 233 nodal periods = 16 nodal days (to 1 microsecond).
     assert abs(_repeat_mismatch(233, 16, a, 98.2 * DEG)) < 1e-6
@@ -120,15 +121,15 @@ def test_repeat_ground_track_landsat_like():
 def test_repeat_ground_track_fifteen_per_day():
     # Common practice: the 15 rev / 1 day circular repeat sits near 480-565 km depending on
     # inclination; J2 lowers it more for prograde than for near-polar orbits.
-    a_iss = design.repeat_ground_track_a(15, 1, 51.6 * DEG)
-    a_sso = design.repeat_ground_track_a(15, 1, 97.6 * DEG)
+    a_iss = special.repeat_ground_track_a(15, 1, 51.6 * DEG)
+    a_sso = special.repeat_ground_track_a(15, 1, 97.6 * DEG)
     assert 480.0 < a_iss - R < 565.0 and 480.0 < a_sso - R < 565.0
     assert a_iss < a_sso
     # Without J2 (two-body) the 15/1 orbit would be at n = 15 omega_E exactly.
-    a_two_body = design.semi_major_axis_km(2 * np.pi / (15 * OMEGA_EARTH_RAD_S))
+    a_two_body = special.semi_major_axis_km(2 * np.pi / (15 * OMEGA_EARTH_RAD_S))
     assert abs(a_sso - a_two_body) < 0.01 * a_two_body  # J2 moves a by < 1 %
     # Fourteen-and-a-third style: 43 revs in 3 days, eccentric case, exact equation.
-    a43 = design.repeat_ground_track_a(43, 3, 97.0 * DEG, e=0.001)
+    a43 = special.repeat_ground_track_a(43, 3, 97.0 * DEG, e=0.001)
     assert abs(_repeat_mismatch(43, 3, a43, 97.0 * DEG, 0.001)) < 1e-6
 
 
@@ -144,12 +145,12 @@ def test_repeat_ground_track_fifteen_per_day():
 )
 def test_repeat_ground_track_errors(args, field):
     with pytest.raises(ElementError, match=field):
-        design.repeat_ground_track_a(*args)
+        special.repeat_ground_track_a(*args)
 
 
 def test_critical_inclination():
     # arccos(1/sqrt 5) = 63.4349 deg (REFERENCES.md), printed to 1e-4 deg.
-    i1, i2 = design.critical_inclination()
+    i1, i2 = special.critical_inclination()
     assert i1 == pytest.approx(63.4349 * DEG, abs=0.00005 * DEG)
     assert i2 == pytest.approx((180.0 - 63.4349) * DEG, abs=0.00005 * DEG)
     for i in (i1, i2):
@@ -164,12 +165,12 @@ def test_footprint_worked_example_1200_km():
     # (REFERENCES.md): h = 1200 km -> rho = 57.31 deg; eps = 30 deg -> eta = 46.79 deg,
     # lambda = 13.21 deg. Those digits need R ~ 6378 km (R = 6371 km gives rho = 57.30).
     h, eps = 1200.0, 30.0 * DEG
-    assert design.angular_radius_rho(h) == pytest.approx(57.31 * DEG, abs=HALF_CENTIDEGREE_RAD)
-    eta = design.nadir_angle_from_elevation(h, eps)
-    lam = design.central_angle_from_elevation(h, eps)
+    assert geometry.angular_radius_rho(h) == pytest.approx(57.31 * DEG, abs=HALF_CENTIDEGREE_RAD)
+    eta = geometry.nadir_angle_from_elevation(h, eps)
+    lam = geometry.central_angle_from_elevation(h, eps)
     assert eta == pytest.approx(46.79 * DEG, abs=HALF_CENTIDEGREE_RAD)
     assert lam == pytest.approx(13.21 * DEG, abs=HALF_CENTIDEGREE_RAD)
-    fp = design.footprint(h, eps)
+    fp = geometry.footprint(h, eps)
     assert fp.central_angle_rad == pytest.approx(lam, abs=ROUNDING_RAD)
     assert fp.nadir_angle_rad == pytest.approx(eta, abs=ROUNDING_RAD)
     assert fp.elevation_rad == pytest.approx(eps, abs=ROUNDING_RAD)
@@ -181,11 +182,11 @@ def test_footprint_worked_example_1200_km():
 def test_geo_horizon_central_angle():
     # Common practice: from GEO (h = 35,786 km) the horizon lies at lambda = arccos(R/(R+h))
     # ~ 81.3 deg (printed to 0.1 deg: 0.05 deg).
-    lam = design.central_angle_from_elevation(35786.0, 0.0)
+    lam = geometry.central_angle_from_elevation(35786.0, 0.0)
     assert lam == pytest.approx(81.3 * DEG, abs=0.05 * DEG)
     assert lam == pytest.approx(np.arccos(R / (R + 35786.0)), abs=ROUNDING_RAD)
     # Horizon slant range is the tangent length sqrt((R+h)^2 - R^2).
-    fp = design.footprint(35786.0)
+    fp = geometry.footprint(35786.0)
     assert fp.slant_range_km == pytest.approx(
         np.sqrt((R + 35786.0) ** 2 - R**2), abs=ONE_MILLIMETRE_KM
     )
@@ -194,31 +195,31 @@ def test_geo_horizon_central_angle():
 def test_nadir_limits_and_round_trip():
     h = np.array([400.0, 1200.0, 20000.0])
     eps = np.array([0.0, 10.0, 45.0]) * DEG
-    eta = design.nadir_angle_from_elevation(h, eps)
-    np.testing.assert_allclose(design.elevation_from_nadir(h, eta), eps, rtol=0, atol=1e-7)
+    eta = geometry.nadir_angle_from_elevation(h, eps)
+    np.testing.assert_allclose(geometry.elevation_from_nadir(h, eta), eps, rtol=0, atol=1e-7)
     np.testing.assert_allclose(
-        design.central_angle_from_nadir(h, eta),
-        design.central_angle_from_elevation(h, eps),
+        geometry.central_angle_from_nadir(h, eta),
+        geometry.central_angle_from_elevation(h, eps),
         rtol=0,
         atol=1e-7,  # arccos near 1 at eps = 0 loses half the digits: sqrt(1e-16) rad
     )
     # Straight down: nadir point, zero central angle, range = altitude.
-    assert design.central_angle_from_nadir(700.0, 0.0) == pytest.approx(0.0, abs=ROUNDING_RAD)
-    assert design.slant_range_km(700.0, 0.0, 0.0) == 700.0
+    assert geometry.central_angle_from_nadir(700.0, 0.0) == pytest.approx(0.0, abs=ROUNDING_RAD)
+    assert geometry.slant_range_km(700.0, 0.0, 0.0) == 700.0
     # Beyond the limb clamps to the horizon (documented).
-    rho = design.angular_radius_rho(700.0)
-    assert design.central_angle_from_nadir(700.0, 80 * DEG) == pytest.approx(
+    rho = geometry.angular_radius_rho(700.0)
+    assert geometry.central_angle_from_nadir(700.0, 80 * DEG) == pytest.approx(
         np.pi / 2 - rho, abs=ROUNDING_RAD
     )
-    assert design.elevation_from_nadir(700.0, 80 * DEG) == 0.0
+    assert geometry.elevation_from_nadir(700.0, 80 * DEG) == 0.0
 
 
 def test_footprint_sensor_limit_is_tighter_of_two():
     h = np.array([500.0, 1200.0])
-    wide = design.footprint(h, 10 * DEG, max_off_nadir_rad=80 * DEG)
-    elev_only = design.footprint(h, 10 * DEG)
+    wide = geometry.footprint(h, 10 * DEG, max_off_nadir_rad=80 * DEG)
+    elev_only = geometry.footprint(h, 10 * DEG)
     np.testing.assert_array_equal(wide.central_angle_rad, elev_only.central_angle_rad)
-    narrow = design.footprint(h, 10 * DEG, max_off_nadir_rad=30 * DEG)
+    narrow = geometry.footprint(h, 10 * DEG, max_off_nadir_rad=30 * DEG)
     np.testing.assert_allclose(narrow.nadir_angle_rad, 30 * DEG, rtol=0, atol=ROUNDING_RAD)
     assert np.all(narrow.central_angle_rad < elev_only.central_angle_rad)
     assert np.all(narrow.elevation_rad > 10 * DEG)
@@ -231,19 +232,19 @@ def test_footprint_sensor_limit_is_tighter_of_two():
     )
     # Scalar inputs give floats, array inputs match the scalar results.
     for k in range(h.size):
-        one = design.footprint(float(h[k]), 10 * DEG, max_off_nadir_rad=30 * DEG)
+        one = geometry.footprint(float(h[k]), 10 * DEG, max_off_nadir_rad=30 * DEG)
         assert isinstance(one.central_angle_rad, float)
         assert one.slant_range_km == pytest.approx(narrow.slant_range_km[k], rel=1e-15)
 
 
 def test_footprint_bad_input():
     with pytest.raises(ElementError, match="alt_km"):
-        design.footprint(-5.0)
+        geometry.footprint(-5.0)
     with pytest.raises(CovergridError, match="min_elevation_rad"):
-        design.footprint(500.0, 2.0)
+        geometry.footprint(500.0, 2.0)
     with pytest.raises(CovergridError, match="min_el_rad"):
-        design.central_angle_from_elevation(500.0, -0.1)
+        geometry.central_angle_from_elevation(500.0, -0.1)
     with pytest.raises(CovergridError, match="max_off_nadir_rad"):
-        design.footprint(500.0, 0.0, -0.1)
+        geometry.footprint(500.0, 0.0, -0.1)
     with pytest.raises(CovergridError, match="eta_rad"):
-        design.elevation_from_nadir(500.0, np.nan)
+        geometry.elevation_from_nadir(500.0, np.nan)

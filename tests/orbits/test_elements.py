@@ -8,19 +8,11 @@ import numpy as np
 import pytest
 
 from covergrid.errors import ElementError
-from covergrid.orbits.elements import (
-    ORBIT_CIRCULAR_EQUATORIAL,
-    ORBIT_CIRCULAR_INCLINED,
-    ORBIT_DEGENERATE,
-    ORBIT_NONCIRCULAR_EQUATORIAL,
-    ORBIT_NONCIRCULAR_INCLINED,
-    ORBIT_TYPE_MEANINGS,
-    cartesian_to_kepler,
+from covergrid.orbits.anomalies import (
     eccentric_to_mean,
     eccentric_to_true,
     hyperbolic_to_mean,
     hyperbolic_to_true,
-    kepler_to_cartesian,
     mean_to_eccentric,
     mean_to_hyperbolic,
     mean_to_true,
@@ -29,6 +21,16 @@ from covergrid.orbits.elements import (
     true_to_eccentric,
     true_to_hyperbolic,
     true_to_mean,
+)
+from covergrid.orbits.elements import (
+    ORBIT_CIRCULAR_EQUATORIAL,
+    ORBIT_CIRCULAR_INCLINED,
+    ORBIT_DEGENERATE,
+    ORBIT_NONCIRCULAR_EQUATORIAL,
+    ORBIT_NONCIRCULAR_INCLINED,
+    ORBIT_TYPE_MEANINGS,
+    cartesian_to_kepler,
+    kepler_to_cartesian,
     validate_elements,
     validate_state,
 )

@@ -15,17 +15,19 @@ from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
 from covergrid.constants import EARTH_RADIUS_KM
-from covergrid.orbits.elements import (
-    ECCENTRICITY_TOL,
-    INCLINATION_TOL_RAD,
-    cartesian_to_kepler,
+from covergrid.orbits.anomalies import (
     eccentric_to_mean,
     hyperbolic_to_mean,
-    kepler_to_cartesian,
     mean_to_true,
     solve_kepler,
     solve_kepler_hyperbolic,
     true_to_mean,
+)
+from covergrid.orbits.elements import (
+    ECCENTRICITY_TOL,
+    INCLINATION_TOL_RAD,
+    cartesian_to_kepler,
+    kepler_to_cartesian,
 )
 from covergrid.orbits.walker import walker_delta
 

@@ -9,9 +9,10 @@ import pytest
 
 from covergrid.constants import EARTH_RADIUS_KM, MU_EARTH_KM3_S2
 from covergrid.errors import ElementError
-from covergrid.orbits.elements import kepler_to_cartesian, mean_to_true, true_to_mean
+from covergrid.orbits.anomalies import mean_to_true, true_to_mean
+from covergrid.orbits.element_set import ElementSet
+from covergrid.orbits.elements import kepler_to_cartesian
 from covergrid.orbits.walker import (
-    ElementSet,
     from_keplerian,
     from_state_vectors,
     walker,

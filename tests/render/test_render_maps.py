@@ -7,9 +7,9 @@ import re
 import matplotlib.pyplot as plt
 import numpy as np
 import pytest
-from conftest import make_dataset
 from PIL import Image
 
+from conftest import analytic_dataset
 from covergrid.errors import CovergridError
 from covergrid.render import maps, style
 
@@ -60,7 +60,7 @@ def test_save_maps_png_and_vector_pdf(dataset, tmp_path, offline_and_tidy):
 
 def test_fine_grid_rasterises_only_the_mesh(tmp_path, monkeypatch):
     monkeypatch.setattr(maps, "VECTOR_CELL_LIMIT", 100)
-    written = maps.save_metric_maps(make_dataset(10.0), ["coverage_fraction"], tmp_path,
+    written = maps.save_metric_maps(analytic_dataset(10.0), ["coverage_fraction"], tmp_path,
                                     caption=None)
     data = written[1].read_bytes()
     images = _pdf_images(data)
@@ -81,7 +81,7 @@ def test_nfold_one_map_per_fold_or_chosen_fold(dataset, tmp_path):
     ("scale_s", "unit"), [(100.0, "s"), (3600.0, "min"), (6 * 3600.0, "h")],
 )
 def test_colour_bar_unit_follows_range(scale_s, unit):
-    ds = make_dataset(10.0, max_gap_scale_s=scale_s)
+    ds = analytic_dataset(10.0, max_gap_scale_s=scale_s)
     mesh = maps.plot_metric_map(ds, "max_gap")
     try:
         label = mesh.colorbar.ax.get_ylabel()
@@ -110,7 +110,7 @@ def test_fraction_in_percent_and_counts_discrete(dataset):
 
 
 def test_nan_cells_are_masked_and_transparent():
-    ds = make_dataset(10.0)
+    ds = analytic_dataset(10.0)
     gap = ds["max_gap"].values.copy()
     outside = np.abs(ds["lat"].values) > 60.0
     gap[outside, :] = np.nan
@@ -126,7 +126,7 @@ def test_nan_cells_are_masked_and_transparent():
 
 
 def test_latitude_band_grid_draws(tmp_path):
-    ds = make_dataset(10.0, lat_min_deg=-60.0, lat_max_deg=60.0)
+    ds = analytic_dataset(10.0, lat_min_deg=-60.0, lat_max_deg=60.0)
     written = maps.save_metric_maps(ds, ["mean_response_time"], tmp_path, caption="band",
                                     projection="mollweide")
     _assert_report_png(written[0], EXPECTED_PX)
@@ -215,7 +215,7 @@ def test_design_caption_errors():
 def test_outlying_durations_clip_the_colour_scale_with_an_arrow():
     """Never-seen cells (gap = span) must not flatten the rest of a gap map: the scale stops at
     the 98th percentile of the cells and the colour bar gets a 'more than' arrow."""
-    ds = make_dataset(10.0, max_gap_scale_s=3600.0)
+    ds = analytic_dataset(10.0, max_gap_scale_s=3600.0)
     gap = ds["max_gap"].values.copy()
     gap[0, :6] = 50 * float(np.nanmax(gap))  # a few outliers (under 2 % of the cells)
     ds["max_gap"] = (ds["max_gap"].dims, gap, ds["max_gap"].attrs)
@@ -227,7 +227,7 @@ def test_outlying_durations_clip_the_colour_scale_with_an_arrow():
         assert mesh.colorbar.extend == "max"
     finally:
         plt.close(mesh.axes.figure)
-    plain = maps.plot_metric_map(make_dataset(10.0, max_gap_scale_s=3600.0), "max_gap")
+    plain = maps.plot_metric_map(analytic_dataset(10.0, max_gap_scale_s=3600.0), "max_gap")
     try:
         assert plain.colorbar.extend == "neither"
     finally:
@@ -238,7 +238,7 @@ def test_outlying_durations_clip_the_colour_scale_with_an_arrow():
 def test_uniform_fraction_uses_the_whole_percent_scale(value):
     """A fraction that is the same everywhere (e.g. 2-fold coverage with one satellite) is drawn
     on 0-100 %, not on a bar around the value that reaches negative percent."""
-    ds = make_dataset(10.0)
+    ds = analytic_dataset(10.0)
     ds["coverage_fraction"] = (ds["coverage_fraction"].dims,
                                np.full(ds["coverage_fraction"].shape, value),
                                ds["coverage_fraction"].attrs)
@@ -250,7 +250,7 @@ def test_uniform_fraction_uses_the_whole_percent_scale(value):
 
 
 def test_uniform_duration_scale_stays_non_negative():
-    ds = make_dataset(10.0)
+    ds = analytic_dataset(10.0)
     ds["max_gap"] = (ds["max_gap"].dims, np.zeros(ds["max_gap"].shape), ds["max_gap"].attrs)
     mesh = maps.plot_metric_map(ds, "max_gap")
     try:

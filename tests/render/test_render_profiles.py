@@ -5,9 +5,9 @@ from __future__ import annotations
 import matplotlib.pyplot as plt
 import numpy as np
 import pytest
-from conftest import make_dataset
 from PIL import Image
 
+from conftest import analytic_dataset
 from covergrid.render import profiles, style
 
 # Sums of a few float64 products: only rounding remains.
@@ -15,7 +15,7 @@ ROUNDING = 1e-12
 
 
 def test_zonal_mean_uses_cell_area_and_skips_nan():
-    ds = make_dataset(30.0)
+    ds = analytic_dataset(30.0)
     values = np.tile(np.arange(12, dtype=float), (6, 1))  # (lat, lon): value = lon index
     area = np.ones((6, 12))
     area[0, :6] = 3.0  # first row: the western half weighs three times as much
@@ -34,7 +34,7 @@ def test_zonal_mean_uses_cell_area_and_skips_nan():
 
 
 def test_nfold_profile_needs_a_valid_fold():
-    ds = make_dataset(30.0)
+    ds = analytic_dataset(30.0)
     prof = profiles.latitude_profile(ds, "nfold_fraction", k=2)
     expected = ds["nfold_fraction"].sel(k=2).mean("lon").values
     np.testing.assert_allclose(prof["mean"], expected, rtol=0, atol=ROUNDING)
@@ -43,7 +43,7 @@ def test_nfold_profile_needs_a_valid_fold():
 
 
 def test_saved_profile_figure(tmp_path):
-    ds = make_dataset(10.0)
+    ds = analytic_dataset(10.0)
     metrics = ["coverage_fraction", "max_gap", "nfold_fraction"]
     written = profiles.save_latitude_profile(ds, metrics, tmp_path, caption="Test design.")
     assert [p.name for p in written] == ["latitude_profile.png", "latitude_profile.pdf"]
@@ -56,7 +56,7 @@ def test_saved_profile_figure(tmp_path):
 
 
 def test_profile_panels_and_units():
-    ds = make_dataset(10.0, max_gap_scale_s=6 * 3600.0)
+    ds = analytic_dataset(10.0, max_gap_scale_s=6 * 3600.0)
     axes = profiles.plot_latitude_profile(ds, ["max_gap", "coverage_fraction", "pass_count"])
     try:
         labels = [ax.get_xlabel() for ax in axes]
@@ -68,7 +68,7 @@ def test_profile_panels_and_units():
         assert axes[0].get_ylim() == (-90.0, 90.0)
     finally:
         plt.close(axes[0].figure)
-    band = make_dataset(10.0, lat_min_deg=-60.0, lat_max_deg=60.0)
+    band = analytic_dataset(10.0, lat_min_deg=-60.0, lat_max_deg=60.0)
     axes = profiles.plot_latitude_profile(band, ["max_gap"])
     try:
         assert axes[0].get_ylim() == (-60.0, 60.0)  # the axis spans the computed band

@@ -6,7 +6,8 @@ import matplotlib.pyplot as plt
 import numpy as np
 import pytest
 
-from covergrid.metrics import METRICS
+from covergrid import io
+from covergrid.compute.metrics import METRICS
 from covergrid.render import style
 
 
@@ -67,13 +68,14 @@ def test_label():
     assert style.metric_label("x_y", {}, style.DisplayUnit("", 1.0)) == "x y"
 
 
-def test_atomic_save_leaves_nothing_on_failure(tmp_path):
+def test_figure_save_leaves_nothing_on_failure(tmp_path):
+    # the one figure saver, covergrid.io.save_figure (render/style had a second one)
     fig = plt.figure()
     try:
         with pytest.raises(ValueError, match="not supported"):
-            style.atomic_savefig(fig, tmp_path / "figure.nosuchformat")
+            io.save_figure(fig, tmp_path / "figure.nosuchformat")
         assert list(tmp_path.iterdir()) == []
-        path = style.atomic_savefig(fig, tmp_path / "sub" / "figure.png")
+        path = io.save_figure(fig, tmp_path / "sub" / "figure.png")
         assert [p.name for p in path.parent.iterdir()] == ["figure.png"]
         assert path.stat().st_mode & 0o044  # readable by others, not mkstemp's 0600
     finally:

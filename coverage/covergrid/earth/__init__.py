@@ -1,0 +1,1 @@
+"""The Earth: time scales and sidereal angle, frames and geodesy, the Sun."""

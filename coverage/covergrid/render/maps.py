@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from covergrid.errors import CovergridError
+from covergrid.io import save_figure
 from covergrid.render import style
 from covergrid.render.coastlines import coastline_geometry
 
@@ -137,7 +138,7 @@ def _projection_name(projection) -> str | None:
     return projection if isinstance(projection, str) else None
 
 
-def _prepare_axes(ax, projection_name):
+def prepare_map_axes(ax, projection_name):
     """Extent, polar circle boundary, coastlines and gridlines for one map axes."""
     import cartopy.crs as ccrs
     import matplotlib.path as mpath
@@ -179,7 +180,7 @@ def _edges_from_bounds(bounds: np.ndarray) -> np.ndarray:
     return np.concatenate([bounds[:, 0], bounds[-1:, 1]])
 
 
-def _metric_field(ds, metric: str, k: int | None):
+def metric_field(ds, metric: str, k: int | None):
     if metric not in ds.data_vars:
         metrics = sorted(n for n in ds.data_vars if {"lat", "lon"} <= set(ds[n].dims)
                          and n != "cell_area")
@@ -238,7 +239,7 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
     import cartopy.crs as ccrs
     import matplotlib.pyplot as plt
 
-    da, fold = _metric_field(ds, metric, k)
+    da, fold = metric_field(ds, metric, k)
     units = da.attrs.get("units")
     values = np.asarray(da.values, dtype=float)
     unit = style.display_unit(metric, units, values)
@@ -256,7 +257,7 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
         else:
             fig, own_figure = ax.figure, False
         name = _projection_name(projection) if own_figure else None
-        _prepare_axes(ax, name)
+        prepare_map_axes(ax, name)
 
         colormap = style.colormap_for(metric, units, cmap=cmap)
         norm, ticks, extend = _norm_for(metric, units, shown)
@@ -382,7 +383,7 @@ def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None
     metrics = list(metrics)
     jobs = list(_map_jobs(ds, metrics, k))
     for metric, fold, _ in jobs:  # validate everything before writing anything
-        _metric_field(ds, metric, fold)
+        metric_field(ds, metric, fold)
     get_projection(projection)
     maps_dir = Path(os.fspath(out_dir)) / "maps"
     written: list[Path] = []
@@ -393,7 +394,7 @@ def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None
         fig = mesh.axes.figure
         try:
             for suffix in (".png", ".pdf"):
-                written.append(style.atomic_savefig(fig, maps_dir / f"{stem}{suffix}"))
+                written.append(save_figure(fig, maps_dir / f"{stem}{suffix}", dpi=style.DPI))
         finally:
             plt.close(fig)
     return written

@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from covergrid.errors import CovergridError
+from covergrid.io import save_figure
 from covergrid.render import style
 
 __all__ = [
@@ -53,9 +54,9 @@ def latitude_profile(ds, metric: str, *, k: int | None = None) -> dict[str, np.n
     one row have equal area, so this is also the plain mean; the weights matter for masked
     cells and irregular inputs).
     """
-    from covergrid.render.maps import _metric_field
+    from covergrid.render.maps import metric_field
 
-    da, _ = _metric_field(ds, metric, k)
+    da, _ = metric_field(ds, metric, k)
     if "cell_area" not in ds:
         raise CovergridError("the Dataset has no 'cell_area' for area weights", field="ds")
     values = np.asarray(da.values, dtype=float)
@@ -175,7 +176,7 @@ def save_latitude_profile(ds, metrics: Sequence[str], out_dir, *,
     axes = plot_latitude_profile(ds, metrics, caption=caption, **kwargs)
     fig = axes[0].figure
     try:
-        return [style.atomic_savefig(fig, Path(os.fspath(out_dir)) / f"{stem}{suffix}")
+        return [save_figure(fig, Path(os.fspath(out_dir)) / f"{stem}{suffix}", dpi=style.DPI)
                 for suffix in (".png", ".pdf")]
     finally:
         plt.close(fig)

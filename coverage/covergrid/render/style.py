@@ -13,8 +13,8 @@ a reader can tell kinds apart across a report:
 Each map is oriented so that **the bright (yellow) end always means good**: for a metric where
 higher is better the map runs dark -> bright with the value; where lower is better (gaps, response
 time) the reversed map is used, so a short gap is bright. Which way is better comes from the
-metric registry ``covergrid.metrics.METRICS`` (field ``better``); a variable it does not list is
-drawn as higher-is-better.
+metric registry ``covergrid.compute.metrics.METRICS`` (field ``better``); a variable it does not
+list is drawn as higher-is-better.
 
 Display units
 -------------
@@ -27,12 +27,9 @@ quantities are plain numbers. The chosen unit is always in the axis or colour-ba
 from __future__ import annotations
 
 import contextlib
-import os
-import tempfile
 import textwrap
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
@@ -41,7 +38,6 @@ __all__ = [
     "FOOTER",
     "DisplayUnit",
     "add_caption",
-    "atomic_savefig",
     "colormap_for",
     "display_unit",
     "fold_text",
@@ -111,7 +107,8 @@ def metric_kind(name: str, units: str | None) -> str:
 
 
 def is_lower_better(name: str) -> bool:
-    """Whether a lower value of metric ``name`` is better, per ``covergrid.metrics.METRICS``.
+    """Whether a lower value of metric ``name`` is better, per
+    ``covergrid.compute.metrics.METRICS``.
 
     Parameters
     ----------
@@ -123,7 +120,7 @@ def is_lower_better(name: str) -> bool:
     bool
         True for gap-like metrics; False for metrics the registry does not list.
     """
-    from covergrid.metrics import METRICS
+    from covergrid.compute.metrics import METRICS
 
     info = METRICS.get(name)
     return info is not None and info.better == "lower"
@@ -314,37 +311,3 @@ def add_caption(fig, caption: str | None, *, footer: str = FOOTER, width_chars=N
         fig.text(0.02, 0.105, text, ha="left", va="top", fontsize=_FONT_PT["caption"])
     fig.text(0.02, 0.012, footer, ha="left", va="bottom", fontsize=_FONT_PT["footer"],
              color="0.35", style="italic")
-
-
-def atomic_savefig(fig, path: str | os.PathLike, *, dpi: int = DPI) -> Path:
-    """Save a figure under a temporary name in the target folder, then rename it into place.
-
-    Parameters
-    ----------
-    fig : matplotlib.figure.Figure
-        Figure to save.
-    path : path-like
-        Target file; the format comes from its suffix (``.png``, ``.pdf``).
-    dpi : int
-        Raster resolution [dots per inch].
-
-    Returns
-    -------
-    pathlib.Path
-        The written path. A failure leaves no partial file behind.
-    """
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    try:
-        fig.savefig(tmp, format=path.suffix.lstrip("."), dpi=dpi)
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; give the file normal permissions
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
-    return path

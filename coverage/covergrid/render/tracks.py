@@ -15,6 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from covergrid.errors import CovergridError
+from covergrid.io import save_figure
 from covergrid.render import style
 from covergrid.render.coastlines import land_geometry
 
@@ -36,7 +37,7 @@ def ground_track(elements, epoch, t_s) -> tuple[np.ndarray, np.ndarray]:
 
     Parameters
     ----------
-    elements : covergrid.orbits.walker.ElementSet
+    elements : covergrid.orbits.element_set.ElementSet
         Mean elements at ``epoch`` [km, rad].
     epoch : numpy.datetime64 or str
         Epoch of the elements (UTC).
@@ -74,7 +75,7 @@ def plane_numbers(elements) -> np.ndarray:
 
     Parameters
     ----------
-    elements : covergrid.orbits.walker.ElementSet
+    elements : covergrid.orbits.element_set.ElementSet
         Elements at the epoch [rad].
 
     Returns
@@ -194,7 +195,7 @@ def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, pl
     import cartopy.crs as ccrs
     import matplotlib.pyplot as plt
 
-    from covergrid.render.maps import _prepare_axes, get_projection
+    from covergrid.render.maps import get_projection, prepare_map_axes
 
     lat = np.atleast_2d(np.asarray(lat_deg, dtype=float))
     lon = np.atleast_2d(np.asarray(lon_deg, dtype=float))
@@ -236,7 +237,7 @@ def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, pl
         name = projection if own_figure and isinstance(projection, str) else None
         ax.add_geometries([land_geometry("110m")], crs=ccrs.PlateCarree(), facecolor="0.92",
                           edgecolor="none", zorder=0)
-        _prepare_axes(ax, name)
+        prepare_map_axes(ax, name)
         lines = []
         labelled = set()
         for s in shown:
@@ -294,7 +295,7 @@ def save_ground_tracks(lat_deg, lon_deg, out_dir, *, stem: str = "ground_tracks"
     lines = plot_ground_tracks(lat_deg, lon_deg, caption=caption, **kwargs)
     fig = lines[0].axes.figure
     try:
-        return [style.atomic_savefig(fig, Path(os.fspath(out_dir)) / f"{stem}{suffix}")
+        return [save_figure(fig, Path(os.fspath(out_dir)) / f"{stem}{suffix}", dpi=style.DPI)
                 for suffix in (".png", ".pdf")]
     finally:
         plt.close(fig)

@@ -26,7 +26,7 @@ Columns used (units in the name; extra columns are ignored):
 
 Which way is better for the metric comes from ``better=`` or, if omitted, from the metric
 registry (the column name, or its part before the first ``"_p"`` / ``"_mean"`` suffix, looked up
-in ``covergrid.metrics.METRICS``). Units likewise from ``units=`` or the registry.
+in ``covergrid.compute.metrics.METRICS``). Units likewise from ``units=`` or the registry.
 """
 
 from __future__ import annotations
@@ -38,6 +38,7 @@ from pathlib import Path
 import numpy as np
 
 from covergrid.errors import CovergridError
+from covergrid.io import save_figure
 from covergrid.render import style
 
 __all__ = [
@@ -102,7 +103,7 @@ def design_columns(table, names: Sequence[str], *, optional: Sequence[str] = ())
 
 
 def _registry_info(metric: str):
-    from covergrid.metrics import METRICS
+    from covergrid.compute.metrics import METRICS
 
     if metric in METRICS:
         return METRICS[metric]
@@ -463,7 +464,7 @@ def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = Non
             draw(ax)
             style.add_caption(fig, caption)
             for suffix in (".png", ".pdf"):
-                written.append(style.atomic_savefig(fig, out / f"{stem}{suffix}"))
+                written.append(save_figure(fig, out / f"{stem}{suffix}", dpi=style.DPI))
         finally:
             plt.close(fig)
     return written

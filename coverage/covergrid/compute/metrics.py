@@ -1,9 +1,9 @@
 """What each per-cell coverage metric means, its units and CF attributes.
 
-This module is the one place where a metric is defined. The kernel (:mod:`covergrid.kernel`)
-produces raw per-cell accumulators; :func:`finalise` turns them into the metrics below;
-the engine attaches the attributes from :data:`METRICS`; summaries, requirement checks and
-maps look metrics up here.
+This module is the one place where a metric is defined. The kernel
+(:mod:`covergrid.compute.kernel`) produces raw per-cell accumulators; :func:`finalise` turns
+them into the metrics below; the engine attaches the attributes from :data:`METRICS`;
+summaries, requirement checks and maps look metrics up here.
 
 Sampling convention
 -------------------
@@ -171,11 +171,11 @@ def finalise(acc: dict[str, np.ndarray], n_steps: int, step_s: float) -> dict[st
     Parameters
     ----------
     acc : dict of ndarray
-        Output of :func:`covergrid.kernel.new_state` after the kernel has run and been closed
-        out: ``hist`` (n_cell, K+1) samples spent at each in-view level (last bin: K or more),
-        ``sum_n`` (n_cell,) satellite-samples in view, ``min_n``, ``max_n``, ``gap_count``,
-        ``sum_gap``, ``sum_gap2`` [samples, samples^2], ``max_gap`` [samples] (fractional when
-        gap boundaries are refined), ``pass_count``.
+        Output of :func:`covergrid.compute.kernel_state.new_state` after the kernel has run
+        and been closed out: ``hist`` (n_cell, K+1) samples spent at each in-view level
+        (last bin: K or more), ``sum_n`` (n_cell,) satellite-samples in view, ``min_n``,
+        ``max_n``, ``gap_count``, ``sum_gap``, ``sum_gap2`` [samples, samples^2],
+        ``max_gap`` [samples] (fractional when gap boundaries are refined), ``pass_count``.
     n_steps : int
         Number of samples N in the span [unitless].
     step_s : float

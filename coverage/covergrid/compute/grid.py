@@ -9,15 +9,59 @@ and weighted in every statistic by its exact area on the ellipsoid.
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import dataclass
 from functools import cached_property
 
 import numpy as np
 
-from .constants import WGS84_A_KM, WGS84_E2
-from .errors import CovergridError
+from covergrid.constants import WGS84_A_KM, WGS84_E2
+from covergrid.errors import CovergridError
+
+__all__ = ["Grid", "GridSpec", "authalic_q", "ellipsoid_area_km2", "grid_shape", "row_bands"]
 
 _EPS = 1e-9
+
+
+def grid_shape(resolution_deg: float, lat_min_deg: float, lat_max_deg: float) -> tuple[int, int]:
+    """(rows, columns) of a regular grid, checking that its cells are whole.
+
+    The one rule of a grid's shape: 360 deg is a whole multiple of the resolution, and so is
+    the latitude band.
+
+    Raises
+    ------
+    CovergridError
+        Naming ``grid.resolution_deg``, ``grid.lat_min_deg`` or ``grid.lat_max_deg``.
+    """
+    res = resolution_deg
+    if not (math.isfinite(res) and 0.0 < res <= 90.0):
+        raise CovergridError(
+            f"resolution {res!r} deg is not allowed; use a value in (0, 90]",
+            "grid.resolution_deg",
+        )
+    n_lon = 360.0 / res
+    if abs(n_lon - round(n_lon)) > _EPS * n_lon:
+        raise CovergridError(
+            f"360 deg is not a whole multiple of {res!r} deg; use e.g. 0.25, 0.5, 1, 2, 2.5, 5",
+            "grid.resolution_deg",
+        )
+    for name, v in (("lat_min_deg", lat_min_deg), ("lat_max_deg", lat_max_deg)):
+        if not (math.isfinite(v) and -90.0 <= v <= 90.0):
+            raise CovergridError(f"{v!r} deg is outside [-90, 90]", f"grid.{name}")
+    if not lat_min_deg < lat_max_deg:
+        raise CovergridError(
+            f"lat_min_deg {lat_min_deg!r} must be below lat_max_deg {lat_max_deg!r}",
+            "grid.lat_min_deg",
+        )
+    n_lat = (lat_max_deg - lat_min_deg) / res
+    if abs(n_lat - round(n_lat)) > _EPS * max(n_lat, 1.0):
+        raise CovergridError(
+            f"the band {lat_min_deg!r}..{lat_max_deg!r} deg is not a whole number "
+            f"of {res!r} deg cells; move its edges to multiples of the resolution",
+            "grid.lat_max_deg",
+        )
+    return int(round(n_lat)), int(round(n_lon))
 
 
 @dataclass(frozen=True)
@@ -37,44 +81,17 @@ class GridSpec:
     lat_max_deg: float = 90.0
 
     def __post_init__(self) -> None:
-        res = self.resolution_deg
-        if not (math.isfinite(res) and 0.0 < res <= 90.0):
-            raise CovergridError(
-                f"resolution {res!r} deg is not allowed; use a value in (0, 90]",
-                "grid.resolution_deg",
-            )
-        n_lon = 360.0 / res
-        if abs(n_lon - round(n_lon)) > _EPS * n_lon:
-            raise CovergridError(
-                f"360 deg is not a whole multiple of {res!r} deg; use e.g. 0.25, 0.5, 1, 2, 2.5, 5",
-                "grid.resolution_deg",
-            )
-        for name in ("lat_min_deg", "lat_max_deg"):
-            v = getattr(self, name)
-            if not (math.isfinite(v) and -90.0 <= v <= 90.0):
-                raise CovergridError(f"{v!r} deg is outside [-90, 90]", f"grid.{name}")
-        if not self.lat_min_deg < self.lat_max_deg:
-            raise CovergridError(
-                f"lat_min_deg {self.lat_min_deg!r} must be below lat_max_deg {self.lat_max_deg!r}",
-                "grid.lat_min_deg",
-            )
-        n_lat = (self.lat_max_deg - self.lat_min_deg) / res
-        if abs(n_lat - round(n_lat)) > _EPS * max(n_lat, 1.0):
-            raise CovergridError(
-                f"the band {self.lat_min_deg!r}..{self.lat_max_deg!r} deg is not a whole number "
-                f"of {res!r} deg cells; move its edges to multiples of the resolution",
-                "grid.lat_max_deg",
-            )
+        grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg)
 
     @property
     def n_lat(self) -> int:
         """Number of latitude rows."""
-        return int(round((self.lat_max_deg - self.lat_min_deg) / self.resolution_deg))
+        return grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg)[0]
 
     @property
     def n_lon(self) -> int:
         """Number of longitude columns."""
-        return int(round(360.0 / self.resolution_deg))
+        return grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg)[1]
 
     @property
     def n_cells(self) -> int:
@@ -216,3 +233,19 @@ def authalic_q(lat_rad: np.ndarray | float) -> np.ndarray:
 def ellipsoid_area_km2() -> float:
     """Total surface area of the WGS-84 ellipsoid [km^2] (closed form, Snyder eq. 3-12)."""
     return float(2.0 * math.pi * WGS84_A_KM**2 * authalic_q(math.pi / 2))
+
+
+def row_bands(n_lat: int, chunk_rows: int | None) -> list[tuple[int, int]]:
+    """Split rows 0..n_lat into contiguous bands of at most `chunk_rows` rows.
+
+    With ``chunk_rows=None`` the band count is about four per available core (at least one
+    row each), which balances the latitude-dependent work of inclined constellations while
+    keeping the per-band propagation overhead small.
+    """
+    if chunk_rows is None:
+        n_bands = max(1, min(n_lat, 4 * (os.cpu_count() or 1)))
+        chunk_rows = math.ceil(n_lat / n_bands)
+    if chunk_rows < 1:
+        raise CovergridError(f"{chunk_rows!r} is not allowed; use a positive number of rows",
+                             "compute.chunk_rows")
+    return [(r, min(r + chunk_rows, n_lat)) for r in range(0, n_lat, chunk_rows)]

@@ -13,121 +13,69 @@ identical values (the kernel is deterministic and each cell is computed by one t
 from __future__ import annotations
 
 import math
-import os
 from collections.abc import Mapping
-from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
 import xarray as xr
 
-from . import __version__, kernel
-from .earth.time import epoch_to_iso, gmst_rad, parse_epoch
-from .errors import CovergridError
-from .grid import Grid, GridSpec
-from .metrics import INTEGER_METRICS, METRICS, MODEL_LIMITS, finalise
-from .orbits import j2
+from covergrid import __version__
+from covergrid.compute import kernel, kernel_state
+from covergrid.compute.grid import Grid, GridSpec, row_bands
+from covergrid.compute.metrics import INTEGER_METRICS, METRICS, MODEL_LIMITS, finalise
+from covergrid.compute.sensor import Sensor
+from covergrid.compute.span import count_steps, position_block_length
+from covergrid.earth.time import epoch_to_iso, gmst_rad, parse_epoch
+from covergrid.errors import CovergridError
+from covergrid.orbits import j2
 
-__all__ = ["GridSpec", "SensorSpec", "compute_coverage", "band_edges", "n_samples"]
+__all__ = ["PLANAR_METRICS", "band_task", "compute_coverage"]
 
-#: Satellite-position buffer per task (n_sat x block x 3 float64) is kept near this size [bytes].
-_POSITION_BLOCK_BYTES = 16 * 2**20
+def band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
+              grid_spec: GridSpec, rows: tuple[int, int], sensor: Sensor,
+              nfold_max: int, refine: bool = True) -> np.ndarray:
+    """Metrics of the cells of rows [r0, r1): propagate block by block, stream the kernel.
 
-
-@dataclass(frozen=True)
-class SensorSpec:
-    """Visibility limits of a ground cell from a satellite.
-
-    Parameters
-    ----------
-    min_elevation_deg : float
-        Minimum elevation of the satellite above the cell's ellipsoid-normal horizon [deg],
-        in [0, 90).
-    max_off_nadir_deg : float or None
-        Half-angle of a nadir-pointing conical sensor, measured at the satellite from the
-        geocentric nadir [deg], in (0, 90); None: no limit.
-    max_range_km : float or None
-        Maximum slant range [km]; None: no limit.
+    Returns one float64 stack: the metrics other than ``nfold_fraction`` (order
+    :data:`PLANAR_METRICS`), then the K fold planes, then a plane holding the visit count at
+    [0, 0]. If the kernel's per-sample event queue overflowed
+    (:func:`covergrid.compute.kernel_state.queue_overflow`), the band is computed again with a
+    queue four times longer, so no event is lost.
     """
-
-    min_elevation_deg: float = 10.0
-    max_off_nadir_deg: float | None = None
-    max_range_km: float | None = None
-
-    def __post_init__(self) -> None:
-        e = self.min_elevation_deg
-        if not (math.isfinite(e) and 0.0 <= e < 90.0):
-            raise CovergridError(f"{e!r} deg is not allowed; use [0, 90)",
-                                 "sensor.min_elevation_deg")
-        o = self.max_off_nadir_deg
-        if o is not None and not (math.isfinite(o) and 0.0 < o < 90.0):
-            raise CovergridError(f"{o!r} deg is not allowed; use (0, 90) or leave it out",
-                                 "sensor.max_off_nadir_deg")
-        r = self.max_range_km
-        if r is not None and not (math.isfinite(r) and r > 0.0):
-            raise CovergridError(f"{r!r} km is not allowed; use a positive range or leave it out",
-                                 "sensor.max_range_km")
-
-    def kernel_args(self) -> tuple[float, float, float]:
-        """(el_min_rad, eta_max_rad or 0, range_max_km or 0) as the kernel takes them."""
-        return (
-            math.radians(self.min_elevation_deg),
-            math.radians(self.max_off_nadir_deg) if self.max_off_nadir_deg else 0.0,
-            float(self.max_range_km) if self.max_range_km else 0.0,
-        )
+    queue_per_cell = 2
+    while True:
+        state = _run_band(elements, theta0_rad, step_s, n_steps, grid_spec, rows, sensor,
+                          nfold_max, refine, queue_per_cell)
+        if kernel_state.queue_overflow(state) == 0:
+            break
+        queue_per_cell *= 4
+    r0, r1 = rows
+    n_rows, n_lon = r1 - r0, grid_spec.n_lon
+    res = finalise(kernel_state.accumulators(state), n_steps, step_s)
+    # one float64 stack per band: (metrics except nfold, rows, lon) + nfold (K, rows, lon) +
+    # the visit count, so that the graph has one task per band and no per-metric getitems
+    planes = [res[m].reshape(n_rows, n_lon) for m in PLANAR_METRICS]
+    out = np.empty((len(PLANAR_METRICS) + nfold_max + 1, n_rows, n_lon))
+    out[: len(PLANAR_METRICS)] = planes
+    out[len(PLANAR_METRICS): -1] = res["nfold_fraction"].reshape(nfold_max, n_rows, n_lon)
+    out[-1] = 0.0
+    out[-1, 0, 0] = float(state["visits"][0])
+    return out
 
 
-def n_samples(duration_s: float, step_s: float) -> int:
-    """Number of samples N of a span: ``round(duration / step)``, at least 1.
-
-    The span analysed is ``N * step_s``; a duration that is not a whole number of steps
-    is refused so that the span is exactly what the study says.
-    """
-    if not (math.isfinite(step_s) and step_s > 0.0):
-        raise CovergridError(f"{step_s!r} s is not allowed; use a positive step", "step_s")
-    if not (math.isfinite(duration_s) and duration_s > 0.0):
-        raise CovergridError(f"{duration_s!r} s is not allowed; use a positive span",
-                             "duration_h")
-    if step_s > duration_s:
-        raise CovergridError(
-            f"step {step_s!r} s is longer than the span {duration_s!r} s", "step_s")
-    n = duration_s / step_s
-    if abs(n - round(n)) > 1e-6 * n:
-        raise CovergridError(
-            f"the span {duration_s!r} s is not a whole number of {step_s!r} s steps "
-            f"({n:.4f}); choose a step that divides the span", "step_s")
-    return int(round(n))
-
-
-def band_edges(n_lat: int, chunk_rows: int | None) -> list[tuple[int, int]]:
-    """Split rows 0..n_lat into contiguous bands of at most `chunk_rows` rows.
-
-    With ``chunk_rows=None`` the band count is about four per available core (at least one
-    row each), which balances the latitude-dependent work of inclined constellations while
-    keeping the per-band propagation overhead small.
-    """
-    if chunk_rows is None:
-        n_bands = max(1, min(n_lat, 4 * (os.cpu_count() or 1)))
-        chunk_rows = math.ceil(n_lat / n_bands)
-    if chunk_rows < 1:
-        raise CovergridError(f"{chunk_rows!r} is not allowed; use a positive number of rows",
-                             "compute.chunk_rows")
-    return [(r, min(r + chunk_rows, n_lat)) for r in range(0, n_lat, chunk_rows)]
-
-
-def _band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
-               grid_spec: GridSpec, rows: tuple[int, int], sensor: SensorSpec,
-               nfold_max: int, refine: bool = True) -> np.ndarray:
-    """Metrics of the cells of rows [r0, r1): propagate block by block, stream the kernel."""
+def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
+              grid_spec: GridSpec, rows: tuple[int, int], sensor: Sensor, nfold_max: int,
+              refine: bool, queue_per_cell: int) -> dict[str, np.ndarray]:
+    """The kernel's closed-out state of one band (see :func:`band_task`)."""
     grid = Grid(grid_spec)
     r0, r1 = rows
     geo = {k: np.ascontiguousarray(v[r0:r1]) for k, v in grid.row_geometry.items()}
     n_lon = grid_spec.n_lon
     n_rows = r1 - r0
     n_sat = len(elements.a_km)
-    state = kernel.new_state(n_rows * n_lon, nfold_max, n_sat, n_rows)
+    state = kernel_state.new_state(n_rows * n_lon, nfold_max, n_sat, n_rows, queue_per_cell)
     el_min, eta_max, range_max = sensor.kernel_args()
-    block = max(1, min(n_steps, _POSITION_BLOCK_BYTES // (24 * max(n_sat, 1))))
+    block = position_block_length(n_sat, n_steps)
     buf = np.empty((n_sat, block, 3))
     lon0 = math.radians(-180.0)
     dlon = math.radians(grid_spec.resolution_deg)
@@ -140,20 +88,11 @@ def _band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
         kernel.run_band(state, pos, i0, geo, lon0, dlon, n_lon, el_min, eta_max, range_max,
                         refine)
     kernel.close_band(state, n_steps)
-    res = finalise(kernel.accumulators(state), n_steps, step_s)
-    # one float64 stack per band: (metrics except nfold, rows, lon) + nfold (K, rows, lon) +
-    # the visit count, so that the graph has one task per band and no per-metric getitems
-    planes = [res[m].reshape(n_rows, n_lon) for m in _PLANAR]
-    out = np.empty((len(_PLANAR) + nfold_max + 1, n_rows, n_lon))
-    out[: len(_PLANAR)] = planes
-    out[len(_PLANAR): -1] = res["nfold_fraction"].reshape(nfold_max, n_rows, n_lon)
-    out[-1] = 0.0
-    out[-1, 0, 0] = float(state["visits"][0])
-    return out
+    return state
 
 
 #: Metrics on (lat, lon), in the order of a band task's output stack.
-_PLANAR = [m for m in METRICS if m != "nfold_fraction"]
+PLANAR_METRICS = tuple(m for m in METRICS if m != "nfold_fraction")
 
 
 def _grid_dataset(grid: Grid) -> xr.Dataset:
@@ -183,7 +122,7 @@ def compute_coverage(
     duration_s: float,
     step_s: float,
     grid: GridSpec,
-    sensor: SensorSpec,
+    sensor: Sensor,
     *,
     nfold_max: int = 4,
     chunk_rows: int | None = None,
@@ -198,7 +137,7 @@ def compute_coverage(
     Parameters
     ----------
     elements : ElementSet
-        Mean elements at the epoch [km, rad] (:class:`covergrid.orbits.walker.ElementSet`).
+        Mean elements at the epoch [km, rad] (:class:`covergrid.orbits.element_set.ElementSet`).
     epoch : numpy.datetime64 or str
         Start of the span, UTC.
     duration_s : float
@@ -207,7 +146,7 @@ def compute_coverage(
         Sample spacing [s].
     grid : GridSpec
         Cells.
-    sensor : SensorSpec
+    sensor : Sensor
         Visibility limits.
     nfold_max : int, optional
         K: ``nfold_fraction`` is given for k = 1..K [unitless].
@@ -225,13 +164,13 @@ def compute_coverage(
         Place each gap's start and end at the time the limit was crossed between two samples
         (linear interpolation of the visibility margin of the satellite concerned) instead of
         at the sample after it. Affects max_gap, mean_gap, time_average_gap and
-        mean_response_time only; see :mod:`covergrid.metrics`. False gives the pure sampled
+        mean_response_time only; see :mod:`covergrid.compute.metrics`. False gives the pure sampled
         values.
 
     Returns
     -------
     xarray.Dataset
-        Metrics of :data:`covergrid.metrics.METRICS` on (lat, lon) (``nfold_fraction`` on
+        Metrics of :data:`covergrid.compute.metrics.METRICS` on (lat, lon) (``nfold_fraction`` on
         (k, lat, lon)), with cell bounds, cell areas and CF attributes.
     """
     import dask
@@ -239,7 +178,7 @@ def compute_coverage(
 
     if isinstance(epoch, str):
         epoch = parse_epoch(epoch)
-    n_steps = n_samples(duration_s, step_s)
+    n_steps = count_steps(duration_s, step_s)
     if not (isinstance(nfold_max, int | np.integer) and 1 <= nfold_max <= 64):
         raise CovergridError(f"{nfold_max!r} is not allowed; use an integer 1..64", "nfold_max")
     n_sat = len(elements.a_km)
@@ -247,13 +186,13 @@ def compute_coverage(
         raise CovergridError("the constellation has no satellites", "constellation")
     g = Grid(grid)
     theta0 = float(gmst_rad(epoch, 0.0))
-    bands = band_edges(grid.n_lat, chunk_rows)
+    bands = row_bands(grid.n_lat, chunk_rows)
     n_lon = grid.n_lon
 
-    depth = len(_PLANAR) + nfold_max + 1
-    tasks = [dask.delayed(_band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid,
-                                                  b, sensor, int(nfold_max),
-                                                  bool(refine_transitions)) for b in bands]
+    depth = len(PLANAR_METRICS) + nfold_max + 1
+    tasks = [dask.delayed(band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid,
+                                                 b, sensor, int(nfold_max),
+                                                 bool(refine_transitions)) for b in bands]
     if compute:
         # run the band tasks and assemble with numpy: no dask-array graph to optimise
         stack = np.concatenate(_compute_tasks(tasks, scheduler, progress), axis=1)
@@ -262,10 +201,10 @@ def compute_coverage(
                  for t, b in zip(tasks, bands, strict=True)]
         stack = da.concatenate(parts, axis=1)
     data: dict[str, Any] = {}
-    for idx, name in enumerate(_PLANAR):
+    for idx, name in enumerate(PLANAR_METRICS):
         arr = stack[idx]
         data[name] = arr.astype(np.int32) if name in INTEGER_METRICS else arr
-    data["nfold_fraction"] = stack[len(_PLANAR): len(_PLANAR) + nfold_max]
+    data["nfold_fraction"] = stack[len(PLANAR_METRICS): len(PLANAR_METRICS) + nfold_max]
     visits = stack[-1].sum().astype(np.int64)
 
     ds = _grid_dataset(g)
@@ -279,7 +218,6 @@ def compute_coverage(
         ds[name] = (dims, arr, a)
     ds["visits"] = ((), visits, {
         "long_name": "satellite-sample-cell visibilities counted by the kernel", "units": "1"})
-    sens = asdict(sensor)
     ds.attrs.update({
         "Conventions": "CF-1.8",
         "title": "covergrid per-cell coverage metrics",
@@ -293,9 +231,9 @@ def compute_coverage(
         "covergrid_duration_s": float(n_steps * step_s),
         "covergrid_step_s": float(step_s),
         "covergrid_n_steps": int(n_steps),
-        "covergrid_min_elevation_deg": float(sens["min_elevation_deg"]),
-        "covergrid_max_off_nadir_deg": float(sens["max_off_nadir_deg"] or np.nan),
-        "covergrid_max_range_km": float(sens["max_range_km"] or np.nan),
+        "covergrid_min_elevation_deg": float(sensor.min_elevation_deg),
+        "covergrid_max_off_nadir_deg": float(sensor.max_off_nadir_deg or np.nan),
+        "covergrid_max_range_km": float(sensor.max_range_km or np.nan),
         "covergrid_n_satellites": int(n_sat),
         "covergrid_resolution_deg": float(grid.resolution_deg),
         "covergrid_refine_transitions": int(bool(refine_transitions)),
@@ -319,27 +257,30 @@ def _compute_tasks(tasks: list[Any], scheduler: str | Any, progress: bool) -> li
     else:  # a dask.distributed Client
         kwargs = {"scheduler": scheduler}
     if progress:
-        with _BandProgress(len(tasks)):
+        with _BandProgress({t.key for t in tasks}):
             return list(dask.compute(*tasks, **kwargs))
     return list(dask.compute(*tasks, **kwargs))
 
 
 class _BandProgress:
-    """A tqdm bar over finished band tasks (local schedulers; a Client reports its own)."""
+    """A tqdm bar over finished band tasks (local schedulers; a Client reports its own).
 
-    def __init__(self, n_bands: int) -> None:
-        self.n_bands = n_bands
+    Counts the tasks whose keys it was given, so it is independent of how dask names them.
+    """
+
+    def __init__(self, keys: set) -> None:
+        self.keys = set(keys)
 
     def __enter__(self) -> _BandProgress:
         from dask.callbacks import Callback
         from tqdm import tqdm
 
-        bar = tqdm(total=self.n_bands, desc="coverage bands", unit="band", leave=False)
+        bar = tqdm(total=len(self.keys), desc="coverage bands", unit="band", leave=False)
         self._bar = bar
+        keys = self.keys
 
         def posttask(key: Any, result: Any, dsk: Any, state: Any, worker_id: Any) -> None:
-            name = key[0] if isinstance(key, tuple) else key
-            if isinstance(name, str) and name.startswith("_band_task"):
+            if key in keys:
                 bar.update(1)
 
         self._cb = Callback(posttask=posttask)

@@ -25,10 +25,13 @@ References
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import xarray as xr
+
+if TYPE_CHECKING:
+    from covergrid.compute.requirement import Requirement
 
 __all__ = [
     "PERCENTILES",
@@ -297,7 +300,7 @@ def requirement_verdict(ds: xr.Dataset, metric: str, *, at_most: float | None = 
 
 
 def summarise(ds: xr.Dataset, *, band_width_deg: float = 10.0,
-              requirement: dict | None = None) -> dict[str, Any]:
+              requirement: Requirement | None = None) -> dict[str, Any]:
     """Global and per-latitude-band area-weighted statistics of every metric.
 
     Parameters
@@ -307,9 +310,8 @@ def summarise(ds: xr.Dataset, *, band_width_deg: float = 10.0,
         and ``cell_area`` [m2].
     band_width_deg : float
         Width of the latitude bands [deg].
-    requirement : dict, optional
-        Keyword arguments of :func:`requirement_verdict` (``metric``, ``at_most`` or
-        ``at_least``, ``area_fraction``, ``k``).
+    requirement : Requirement, optional
+        The requirement whose verdict is included.
 
     Returns
     -------
@@ -329,7 +331,7 @@ def summarise(ds: xr.Dataset, *, band_width_deg: float = 10.0,
                                       area.transpose("lat", "lon").values),
             "bands": band_statistics(da, area, band_width_deg, lat_bnds),
         })
-    verdict = requirement_verdict(ds, **requirement) if requirement else None
+    verdict = requirement.verdict(ds) if requirement is not None else None
     keep = {key: _plain(v) for key, v in ds.attrs.items()
             if key.startswith("covergrid_") and key != "covergrid_study"}
     return {"percentiles": list(PERCENTILES), "band_width_deg": float(band_width_deg),

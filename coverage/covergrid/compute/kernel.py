@@ -24,7 +24,7 @@ Cost grows with what changes, not with cells x satellites x steps:
 6. At the end every cell's open level and open gap are closed in one pass.
 
 The sampling convention (sample and hold) and the gap conventions are described in
-:mod:`covergrid.metrics`. The kernel is compiled with numba (cached on disk); with
+:mod:`covergrid.compute.metrics`. The kernel is compiled with numba (cached on disk); with
 ``NUMBA_DISABLE_JIT=1`` the same code runs as plain Python, which is useful for debugging
 and far too slow for studies.
 """
@@ -36,89 +36,31 @@ import math
 import numba
 import numpy as np
 
-from .constants import WGS84_A_KM, WGS84_B_KM
+from covergrid.compute.kernel_state import (  # the state layout (see that module)
+    CLOSE_SAMPLE,
+    EXIT_SAMPLE,
+    GAP_COUNT,
+    GAP_START,
+    HIST0,
+    MAX_N,
+    MIN_N,
+    N_CUR,
+    PASS_COUNT,
+    R_GAP_END,
+    R_GAP_START,
+    R_MAX_GAP,
+    R_SUM_GAP,
+    R_SUM_GAP2,
+    SUM_N,
+    T_LAST,
+)
+from covergrid.constants import WGS84_A_KM, WGS84_B_KM
 
 #: Upper bound on the angle between the ellipsoid normal and the geocentric radius on WGS-84
 #: (the maximum is 0.1924 deg at 45 deg latitude; common practice), with a little margin.
 _VERTICAL_DEFLECTION_BOUND_RAD = math.radians(0.2)
 #: Extra central angle added to the candidate bound to absorb rounding [rad].
 _BOUND_MARGIN_RAD = 1e-6
-
-
-# Columns of the per-cell state: one row of float64 per cell, all fields together, so that
-# touching a cell reads one or two cache lines, and one array only, because every array
-# passed down the inlined helpers costs reference counting per call. Counts and sample
-# indices are whole numbers held exactly in float64 (below 2**53). The R_ columns hold gap
-# boundaries in (fractional) samples: gap start, sums of gap lengths and of their squares,
-# the longest gap, and the end of a gap closing at the current sample.
-(N_CUR, T_LAST, GAP_START, SUM_N, MIN_N, MAX_N, GAP_COUNT, PASS_COUNT, CLOSE_SAMPLE,
- EXIT_SAMPLE, R_GAP_START, R_SUM_GAP, R_SUM_GAP2, R_MAX_GAP, R_GAP_END) = range(15)
-#: first column of the level histogram (samples spent at 0, 1, .., K-1 and >= K in view)
-HIST0 = 15
-_FIELDS = {"sum_n": SUM_N, "min_n": MIN_N, "max_n": MAX_N, "gap_count": GAP_COUNT,
-           "sum_gap": R_SUM_GAP, "sum_gap2": R_SUM_GAP2, "max_gap": R_MAX_GAP,
-           "pass_count": PASS_COUNT}
-
-
-def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int) -> dict[str, np.ndarray]:
-    """Allocate the streaming state of one latitude band.
-
-    Parameters
-    ----------
-    n_cells : int
-        Cells in the band (rows x columns).
-    nfold_max : int
-        K, the highest in-view level kept separately; levels >= K share the last bin.
-    n_sat : int
-        Satellites.
-    n_rows : int
-        Latitude rows in the band.
-
-    Returns
-    -------
-    dict of ndarray
-        ``acc``: rows 0 .. n_cells-1 are the per-cell state (columns ``N_CUR`` ...
-        ``R_GAP_END`` of this module, then from ``HIST0`` the samples spent at each level);
-        the rows after them are one sample's queue of gap-boundary events (cell, satellite,
-        kind), whose count is in the last row. Also the previous interval of every
-        satellite in every row, one sample's queued exits, per-satellite caches, ``visits``.
-    """
-    # Per sample a cell has at most one closing arrival and two departure events; further
-    # arrivals in a closing step are rare. Twice the cells (plus slack) is ample; an event
-    # that would overflow the queue is dropped and its boundary keeps the sample time.
-    cap = 2 * n_cells + 1024
-    acc = np.zeros((n_cells + cap + 1, HIST0 + nfold_max + 1))
-    acc[:n_cells, MIN_N] = 2.0**40
-    acc[:n_cells, CLOSE_SAMPLE] = -1.0
-    acc[:n_cells, EXIT_SAMPLE] = -1.0
-    return {
-        "acc": acc,
-        "n_cells": np.array([n_cells], np.int64),
-        "prev_start": np.zeros((n_sat, n_rows), np.int32),
-        "prev_len": np.zeros((n_sat, n_rows), np.int32),
-        "prev_rows": np.zeros((n_sat, 2), np.int32),
-        # queued exits of one sample: (row, prev start, prev length, new start, new length, sat)
-        "exits": np.zeros((n_sat * n_rows, 6), np.int32),
-        # per satellite: the radius the footprint bound was last computed for, and the bound
-        "bound_cache": np.full((n_sat, 2), -1.0),
-        # per satellite: Earth-fixed positions at the two previous samples (crossing times)
-        "prev_pos": np.zeros((n_sat, 6)),
-        "visits": np.zeros(1, np.int64),
-    }
-
-
-def state_bytes_per_cell(nfold_max: int) -> int:
-    """Bytes of streaming state per cell of a band, as :func:`new_state` allocates them: one
-    float64 row of ``HIST0 + K + 1`` values, plus two rows of event-queue capacity."""
-    return 3 * 8 * (HIST0 + nfold_max + 1)
-
-
-def accumulators(state: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
-    """The closed-out accumulators by name, as :func:`covergrid.metrics.finalise` takes them."""
-    acc = state["acc"][: int(state["n_cells"][0])]
-    out = {name: acc[:, col] for name, col in _FIELDS.items()}
-    out["hist"] = acc[:, HIST0:]
-    return out
 
 
 @numba.njit(cache=True, nogil=True)
@@ -352,8 +294,9 @@ def _close_gap(a, c, t_end):
 
 @numba.njit(cache=True, nogil=True, inline="always")
 def _push(a, ev0, c, s, kind):
-    """Queue a gap-boundary event (cell, satellite, kind) in the rows of `a` from ev0; it is
-    dropped if the queue is full, and that boundary then keeps its sample time."""
+    """Queue a gap-boundary event (cell, satellite, kind) in the rows of `a` from ev0; when
+    the queue is full the event is counted in ``a[last, 1]`` (the engine then recomputes the
+    band with a longer queue, so no boundary keeps a wrong time)."""
     last = a.shape[0] - 1
     q = int(a[last, 0])
     if ev0 + q < last:
@@ -361,6 +304,8 @@ def _push(a, ev0, c, s, kind):
         a[ev0 + q, 1] = s
         a[ev0 + q, 2] = kind
         a[last, 0] = q + 1
+    else:
+        a[last, 1] += 1.0
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -495,7 +440,7 @@ def advance(pos_km, i0, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon,
     i0 : int
         Index of the block's first sample.
     rho, zr, sin_lat, cos_lat, psi : ndarray, (n_rows,)
-        Row geometry of the band (see :attr:`covergrid.grid.Grid.row_geometry`).
+        Row geometry of the band (see :attr:`covergrid.compute.grid.Grid.row_geometry`).
     lon0, dlon : float
         Western edge of column 0 and column width [rad]; n_lon columns cover 360 deg.
     el_min_rad, eta_max_rad, range_max_km : float

@@ -54,22 +54,23 @@ import math
 import os
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from covergrid.errors import StudyError
-from covergrid.sweep import (
-    Design,
-    EvalContext,
-    _caption,
-    _MemoryStore,
-    _template,
-    _template_extras,
-    design_runner,
-    run_designs,
-    trade_figures,
-    walker_options,
-    write_table,
-)
+from covergrid import __version__, io
+from covergrid.compute.grid import GridSpec
+from covergrid.compute.span import count_steps
+from covergrid.errors import CovergridError, StudyError
+from covergrid.study.build import as_resolved
+from covergrid.trade.designs import EvalContext, WalkerDesign, walker_options
+from covergrid.trade.figures import trade_figures
+from covergrid.trade.runner import design_runner, run_designs
+from covergrid.trade.space import designs_caption, evaluation_context
+from covergrid.trade.store import MemoryStore, ResultStore
+from covergrid.trade.tables import write_table
+
+if TYPE_CHECKING:
+    from covergrid.study.build import ResolvedStudy
+    from covergrid.study.models import Study
 
 __all__ = [
     "PRUNING_RULE",
@@ -97,10 +98,8 @@ SIZING_COLUMNS = (
 )
 
 
-def _default_coarse(study) -> tuple[float, float]:
+def _default_coarse(study: ResolvedStudy) -> tuple[float, float]:
     """Twice the cell size (if the grid stays whole) and twice the step (if it divides)."""
-    from covergrid.grid import GridSpec
-
     g = study.grid
     res = g.resolution_deg
     try:
@@ -110,13 +109,15 @@ def _default_coarse(study) -> tuple[float, float]:
     except ValueError:
         pass
     step = study.step_s
-    n = study.duration_s / (2 * step)
-    if n >= 1 and abs(n - round(n)) <= 1e-6 * n:
+    try:
+        count_steps(study.duration_s, 2 * step)
         step = 2 * step
+    except CovergridError:
+        pass
     return res, step
 
 
-def coarse_context(study) -> EvalContext:
+def coarse_context(study: ResolvedStudy | Study) -> EvalContext:
     """The evaluation context of the pruning pass (see the module notes).
 
     Raises
@@ -125,10 +126,8 @@ def coarse_context(study) -> EvalContext:
         If ``sizing.coarse.resolution_deg`` does not give whole cells over the grid's
         latitudes or ``sizing.coarse.step_s`` does not divide the span.
     """
-    from covergrid.engine import n_samples
-    from covergrid.errors import CovergridError
-    from covergrid.grid import GridSpec
-
+    study = as_resolved(study)
+    assert study.sizing is not None
     c = study.sizing.coarse
     res0, step0 = _default_coarse(study)
     res = c.resolution_deg if c.resolution_deg is not None else res0
@@ -141,11 +140,11 @@ def coarse_context(study) -> EvalContext:
                          "that divides 360 deg and the latitude span",
                          field="sizing.coarse.resolution_deg") from None
     try:
-        n_samples(study.duration_s, step)
+        count_steps(study.duration_s, step)
     except CovergridError as exc:
-        raise StudyError(f"{step!r} s is not allowed ({exc})",
+        raise StudyError(f"{str(exc).partition(': ')[2]}; got {step!r}",
                          field="sizing.coarse.step_s") from None
-    return EvalContext.from_study(study, resolution_deg=res, step_s=step)
+    return evaluation_context(study, resolution_deg=res, step_s=step)
 
 
 def is_pruned(coarse_row: dict, area_fraction: float, area_tolerance: float) -> bool:
@@ -154,7 +153,7 @@ def is_pruned(coarse_row: dict, area_fraction: float, area_tolerance: float) -> 
     return not (share >= area_fraction - area_tolerance)  # NaN share: pruned
 
 
-def loss_cases(design: Design, mode: str) -> list[int]:
+def loss_cases(design: WalkerDesign, mode: str) -> list[int]:
     """Indices of the satellites whose single loss is evaluated.
 
     ``one_per_plane``: the first satellite of each plane (index j * T/P); ``all``: every
@@ -200,15 +199,15 @@ class SizingResult:
     files: list[Path] = field(default_factory=list)
 
 
-def size_study(study, store=None, *, scheduler: str | None = None,
+def size_study(study: ResolvedStudy | Study, store=None, *, scheduler: str | None = None,
                progress: bool = False) -> SizingResult:
     """Run the sizing search of the study's ``sizing:`` block (see the module notes).
 
     Parameters
     ----------
-    study : Study
-        A validated study with ``sizing`` and ``requirement``.
-    store : covergrid.store.ResultStore, optional
+    study : ResolvedStudy or Study
+        A study with ``sizing`` and ``requirement`` (resolved here once if not yet).
+    store : ResultStore or MemoryStore, optional
         Where design rows are kept (default: in memory).
     scheduler : str, optional
         Overrides ``compute.scheduler``.
@@ -219,17 +218,17 @@ def size_study(study, store=None, *, scheduler: str | None = None,
     -------
     SizingResult
     """
+    study = as_resolved(study)
     sz = study.sizing
     if sz is None:
         raise StudyError("the study has no sizing block; add sizing: {pattern, altitude_km, "
                          "inclination_deg, total: {min, max}, planes, phasing}", field="sizing")
     req = study.requirement
     assert req is not None  # the study model requires it with sizing
-    store = _MemoryStore() if store is None else store
-    full = EvalContext.from_study(study)
+    store = MemoryStore() if store is None else store
+    full = evaluation_context(study)
     coarse = coarse_context(study) if sz.prune else None
-    _, template = _template(study)
-    extras = _template_extras(template)
+    extras = study.walker.orbit() if study.walker is not None else {}
     el = study.sensor.min_elevation_deg
     cells = [(float(a), float(i)) for a in dict.fromkeys(sz.altitude_km)
              for i in dict.fromkeys(sz.inclination_deg)]
@@ -241,7 +240,7 @@ def size_study(study, store=None, *, scheduler: str | None = None,
     counts = {"coarse_evaluated": 0, "full_evaluated": 0, "pruned": 0, "loss_cases_evaluated": 0,
               "computed_now": 0}
     full_rows: list[dict] = []
-    with design_runner(study, scheduler) as runner:
+    with design_runner(study.compute, scheduler) as runner:
         for total in range(sz.total.min, sz.total.max + 1):
             open_cells = [c for c in cells if c not in found]
             options = walker_options(total, sz.planes, sz.phasing)
@@ -249,7 +248,7 @@ def size_study(study, store=None, *, scheduler: str | None = None,
                 break
             if not options:
                 continue
-            designs = [Design(sz.pattern, total, p, f, alt, inc, el, **extras)
+            designs = [WalkerDesign(sz.pattern, total, p, f, alt, inc, el, **extras)
                        for alt, inc in open_cells for p, f in options]
             for c in open_cells:
                 tried[c] += 1
@@ -273,7 +272,7 @@ def size_study(study, store=None, *, scheduler: str | None = None,
             counts["full_evaluated"] += len(keep)
             counts["computed_now"] += n_new
             full_rows += rows
-            candidates: dict[tuple[float, float], list[tuple[Design, dict]]] = {}
+            candidates: dict[tuple[float, float], list[tuple[WalkerDesign, dict]]] = {}
             for d, r in zip(keep, rows, strict=True):
                 c = (d.altitude_km, d.inclination_deg)
                 per_cell[c]["full"] += 1
@@ -388,15 +387,15 @@ def _result_row(cell, best: dict | None, tried: int, per_cell: dict, pattern: st
     return row
 
 
-def run_sizing(study, out_dir: str | os.PathLike | None = None, *,
+def run_sizing(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = None, *,
                scheduler: str | None = None, progress: bool = False,
                figures: bool = True) -> SizingResult:
     """Run the sizing search and (given ``out_dir``) write its outputs and trade figures.
 
     Parameters
     ----------
-    study : Study
-        A validated study with ``sizing`` and ``requirement``.
+    study : ResolvedStudy or Study
+        A study with ``sizing`` and ``requirement`` (resolved here once if not yet).
     out_dir : path-like, optional
         Output root; outputs go to ``out_dir/<study>/``.
     scheduler : str, optional
@@ -410,13 +409,11 @@ def run_sizing(study, out_dir: str | os.PathLike | None = None, *,
     -------
     SizingResult
     """
-    from covergrid import __version__, io
-    from covergrid.store import ResultStore
-
+    study = as_resolved(study)
     store = None
     folder = None
     if out_dir is not None:
-        folder = io.study_output_dir(out_dir, study.study)
+        folder = io.study_output_dir(out_dir, study.name)
         io.check_writable(folder)
         store = ResultStore(folder / "store")
     if study.sizing is not None and study.sizing.prune:
@@ -425,8 +422,9 @@ def run_sizing(study, out_dir: str | os.PathLike | None = None, *,
     if folder is None:
         return res
     r = study.requirement
+    assert r is not None
     doc = {
-        "study": study.study, "covergrid_version": __version__,
+        "study": study.name, "covergrid_version": __version__,
         "requirement": {"metric": r.metric, "k": r.k, "at_most": r.at_most,
                         "at_least": r.at_least, "area_fraction": r.area_fraction},
         "best": res.best, "results": res.results, "search": res.search,
@@ -436,20 +434,19 @@ def run_sizing(study, out_dir: str | os.PathLike | None = None, *,
     intact = [d for d in res.designs if not d.get("lost_satellite")]
     if res.designs:
         files += write_table(res.designs, study, folder, "sizing_designs")
-    files.append(io.write_text(study.dump_resolved_yaml(), folder / "study.resolved.yaml"))
+    files.append(io.write_text(study.resolved_yaml, folder / "study.resolved.yaml"))
     robust = study.sizing is not None and study.sizing.robust_to_one_loss
     if robust:
         intact = robust_verdicts(res.designs)
     if figures and intact:
-        from covergrid.sweep import Design as _D
-
-        shown = [_D(d["pattern"], int(d["total"]), int(d["planes"]), int(d["phasing"]),
-                    float(d["altitude_km"]), float(d["inclination_deg"]),
-                    float(d["min_elevation_deg"])) for d in intact]
+        shown = [WalkerDesign(d["pattern"], int(d["total"]), int(d["planes"]),
+                              int(d["phasing"]), float(d["altitude_km"]),
+                              float(d["inclination_deg"]), float(d["min_elevation_deg"]))
+                 for d in intact]
         what = "Sizing search (designs evaluated at full resolution"
         what += ("; a design meets the requirement only if it still does after losing its "
                  "worst single satellite)" if robust else ")")
         files += trade_figures(intact, study, folder / "trades" / "sizing",
-                               caption=_caption(study, shown, what))
+                               caption=designs_caption(study, shown, what))
     res.out_dir, res.files = folder, files
     return res

@@ -1,0 +1,1 @@
+"""Running a study: resources and limits, schedulers, the pipeline and its figures."""

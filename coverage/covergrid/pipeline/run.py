@@ -1,0 +1,215 @@
+"""The run pipeline: resolved study -> coverage Dataset -> summaries and files.
+
+``run_study`` resolves a study once (:func:`covergrid.study.build.resolve`), refuses it up
+front if its memory estimate is over the limit (:mod:`covergrid.pipeline.resources`),
+computes the coverage Dataset on the study's scheduler (:mod:`covergrid.pipeline.schedulers`)
+and, given an
+output folder, writes every output:
+
+    DIR/<study>/coverage.nc           CF-1.8 netCDF of every metric
+    DIR/<study>/summary.json, .csv    area-weighted global and per-band statistics, verdict
+    DIR/<study>/study.resolved.yaml   the study with every default filled in
+    DIR/<study>/maps/...              figures (when maps are on)
+
+Nothing is written before the study is valid, the resources suffice and the output folder
+is known to be writable; each file is written atomically (see :mod:`covergrid.io`).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from covergrid import __version__
+from covergrid.pipeline.resources import check_resources
+from covergrid.pipeline.schedulers import open_scheduler
+from covergrid.study.build import ResolvedStudy, resolve
+from covergrid.study.loading import load_study, with_overrides
+from covergrid.study.models import Study
+from covergrid.study.sections import check_scheduler
+
+__all__ = [
+    "RunResult",
+    "dataset_attrs",
+    "resolve_for_run",
+    "run",
+    "run_study",
+    "summarise_study",
+    "write_outputs",
+]
+
+
+@dataclass
+class RunResult:
+    """What :func:`run_study` produced.
+
+    Attributes
+    ----------
+    dataset : xarray.Dataset
+        The coverage metrics on (lat, lon) (engine contract).
+    summary : dict
+        :func:`covergrid.compute.summary.summarise` result (with the requirement verdict).
+    out_dir : pathlib.Path or None
+        The study's output folder, when outputs were written.
+    files : list of pathlib.Path
+        Every file written.
+    """
+
+    dataset: Any
+    summary: dict
+    out_dir: Path | None = None
+    files: list[Path] = field(default_factory=list)
+
+    @property
+    def requirement_met(self) -> bool | None:
+        """The verdict, or None when the study states no requirement."""
+        verdict = self.summary.get("requirement")
+        return None if verdict is None else bool(verdict["met"])
+
+
+def resolve_for_run(study: Study | ResolvedStudy, scheduler: str | None = None) -> ResolvedStudy:
+    """The resolved study, with ``compute.scheduler`` replaced by ``scheduler`` if given.
+
+    Raises
+    ------
+    StudyError
+        If the scheduler override is not a scheduler name or address (``--scheduler``).
+    """
+    if isinstance(study, ResolvedStudy):
+        if scheduler is None:
+            return study
+        try:
+            check_scheduler(scheduler)
+        except ValueError as exc:
+            from covergrid.errors import StudyError
+
+            raise StudyError(str(exc), field="--scheduler") from None
+        return dataclasses.replace(study, compute=dataclasses.replace(study.compute,
+                                                                      scheduler=scheduler))
+    if scheduler is not None:
+        study = with_overrides(study, {"compute.scheduler": scheduler}, source="--scheduler")
+    return resolve(study)
+
+
+def summarise_study(study: ResolvedStudy, ds) -> dict[str, Any]:
+    """Summaries of a coverage Dataset with the study's band width and requirement."""
+    from covergrid.compute.metrics import MODEL_LIMITS
+    from covergrid.compute.summary import summarise
+
+    out = summarise(ds, band_width_deg=study.band_width_deg, requirement=study.requirement)
+    return {"study": study.name, "covergrid_version": __version__, "model_limits": MODEL_LIMITS,
+            **out}
+
+
+def write_outputs(study: ResolvedStudy, ds, out_root: str | Path, *, maps: bool = True,
+                  summary: dict | None = None) -> tuple[Path, list[Path], dict]:
+    """Write every output of a computed study into ``out_root/<study>/``.
+
+    Returns
+    -------
+    tuple
+        (the study folder, the files written, the summary).
+    """
+    from covergrid import io
+    from covergrid.compute.summary import CSV_COLUMNS, summary_rows
+
+    folder = io.study_output_dir(out_root, study.name)
+    summary = summarise_study(study, ds) if summary is None else summary
+    files = [
+        io.write_netcdf(ds, folder / "coverage.nc"),
+        io.write_json(summary, folder / "summary.json"),
+        io.write_csv(summary_rows(summary), folder / "summary.csv", CSV_COLUMNS),
+        io.write_text(study.resolved_yaml, folder / "study.resolved.yaml"),
+    ]
+    if maps:
+        from covergrid.pipeline.figures import write_figures
+
+        files += write_figures(study, ds, folder)
+    return folder, files, summary
+
+
+def dataset_attrs(study: ResolvedStudy) -> dict[str, Any]:
+    """Global attributes a run adds to its Dataset: title, history and the resolved study."""
+    now = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
+    return {
+        "title": f"covergrid coverage metrics: study {study.name}",
+        "history": f"{now.replace('+00:00', 'Z')} covergrid {__version__} run of study "
+                   f"{study.name}",
+        "covergrid_study_name": study.name,
+        "covergrid_study": study.resolved_yaml,
+    }
+
+
+def run_study(study: Study | ResolvedStudy, out_dir: str | Path | None = None, *,
+              progress: bool = False, scheduler: str | None = None, maps: bool = True,
+              force: bool = False) -> RunResult:
+    """Compute a study, summarise it and (given ``out_dir``) write every output.
+
+    Parameters
+    ----------
+    study : Study or ResolvedStudy
+        A validated study (:func:`covergrid.load_study`), resolved here once, or one
+        already resolved (:func:`covergrid.resolve`).
+    out_dir : path-like, optional
+        Output root; outputs go to ``out_dir/<study>/``.
+    progress : bool
+        Show a progress bar.
+    scheduler : str, optional
+        Overrides ``compute.scheduler``.
+    maps : bool
+        Draw the figures (when writing outputs).
+    force : bool
+        Run even if the memory estimate exceeds the limit.
+
+    Returns
+    -------
+    RunResult
+    """
+    from covergrid import io
+    from covergrid.compute.engine import compute_coverage
+
+    resolved = resolve_for_run(study, scheduler)
+    if not force:
+        check_resources(resolved)
+    if out_dir is not None:
+        io.check_writable(io.study_output_dir(out_dir, resolved.name))
+    with open_scheduler(resolved.compute) as sched:
+        ds = compute_coverage(
+            resolved.elements, resolved.epoch, resolved.duration_s, resolved.step_s,
+            resolved.grid, resolved.sensor, nfold_max=resolved.nfold_max,
+            chunk_rows=resolved.compute.chunk_rows, scheduler=sched, progress=progress,
+            attrs=dataset_attrs(resolved), refine_transitions=resolved.refine_transitions,
+        )
+    summary = summarise_study(resolved, ds)
+    if out_dir is None:
+        return RunResult(ds, summary)
+    folder, files, summary = write_outputs(resolved, ds, out_dir, maps=maps, summary=summary)
+    return RunResult(ds, summary, folder, files)
+
+
+def run(study: Study | ResolvedStudy | str | Path, out_dir: str | Path | None = None,
+        progress: bool = False, **kwargs: Any):
+    """Compute a study's coverage Dataset; given ``out_dir``, also write every output.
+
+    Parameters
+    ----------
+    study : Study, ResolvedStudy or path-like
+        A validated study, a resolved one, or the path of a study file.
+    out_dir : path-like, optional
+        Output root; outputs go to ``out_dir/<study>/``.
+    progress : bool
+        Show a progress bar.
+    **kwargs
+        ``scheduler``, ``maps``, ``force`` of :func:`run_study`.
+
+    Returns
+    -------
+    xarray.Dataset
+        Per-cell metrics (see the outputs reference).
+    """
+    if not isinstance(study, (Study, ResolvedStudy)):
+        study = load_study(study)
+    return run_study(study, out_dir, progress=progress, **kwargs).dataset

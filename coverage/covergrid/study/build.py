@@ -1,0 +1,336 @@
+"""From a validated study to what the computation takes: the one translation, done once.
+
+:func:`resolve` turns a :class:`~covergrid.study.models.Study` (the file's values, in the
+file's units) into a :class:`ResolvedStudy`: the constellation's element set (degrees to
+radians here, and only here), the span, the grid, the sensor, the requirement and the
+options of the run, as plain frozen data. Everything downstream (the run pipeline, the
+memory estimate, figures, sweeps and sizing) takes the resolved bundle and never goes back
+to the study file's models, so a study parameter such as ``sensor.min_elevation_deg`` goes
+from the file to the kernel along one path:
+
+    Study.sensor (SensorSection) --resolve--> ResolvedStudy.sensor (compute.sensor.Sensor)
+      --run.pipeline--> compute.engine.compute_coverage(sensor=...) --> Sensor.kernel_args()
+      --> compute.kernel.advance(el_min_rad, ...)
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from covergrid.compute.grid import GridSpec
+from covergrid.compute.requirement import Requirement
+from covergrid.compute.sensor import Sensor
+from covergrid.compute.span import count_steps
+from covergrid.constants import DEG, WGS84_A_KM
+from covergrid.earth.time import parse_epoch
+from covergrid.errors import ElementError, StudyError
+from covergrid.orbits import walker as w
+from covergrid.orbits.element_set import ElementSet
+from covergrid.study.messages import format_path
+from covergrid.study.models import Study
+from covergrid.study.sections import GroupEntry, SatelliteEntry
+from covergrid.study.trade_sections import SizingSection, SweepSection
+
+__all__ = [
+    "ComputeOptions",
+    "MapOptions",
+    "ResolvedStudy",
+    "WalkerTemplate",
+    "as_resolved",
+    "build_elements",
+    "group_prefix",
+    "nfold_max_of",
+    "resolve",
+]
+
+#: Largest fold K of nfold_fraction computed when no requirement asks for more.
+DEFAULT_NFOLD_MAX = 4
+
+
+@dataclass(frozen=True)
+class WalkerTemplate:
+    """The first Walker group of a study: its pattern and the orbit its satellites share.
+
+    Sweeps and sizing substitute their axes into it. Angles in degrees, as in the file.
+    """
+
+    pattern: str
+    total: int
+    planes: int
+    phasing: int
+    altitude_km: float
+    eccentricity: float
+    inclination_deg: float
+    raan_deg: float
+    arg_perigee_deg: float
+    mean_anomaly_deg: float
+
+    def orbit(self) -> dict[str, Any]:
+        """The template orbit besides altitude and inclination (what a design inherits)."""
+        return {"eccentricity": self.eccentricity, "raan_deg": self.raan_deg,
+                "arg_perigee_deg": self.arg_perigee_deg,
+                "mean_anomaly_deg": self.mean_anomaly_deg}
+
+
+@dataclass(frozen=True)
+class ComputeOptions:
+    """Where and how the work runs (``compute:`` of the study file)."""
+
+    scheduler: str = "threads"
+    workers: int | None = None
+    threads_per_worker: int | None = None
+    chunk_rows: int | None = None
+    memory_limit_gb: float | None = None
+
+
+@dataclass(frozen=True)
+class MapOptions:
+    """Which metric maps to draw and in which projection (``maps:`` of the study file)."""
+
+    metrics: tuple[str, ...]
+    projection: str
+
+
+@dataclass(frozen=True)
+class ResolvedStudy:
+    """A study as the computation takes it: plain, frozen, built once by :func:`resolve`.
+
+    Attributes
+    ----------
+    name : str
+        The study name (the output folder).
+    epoch : numpy.datetime64
+        Start of the span, UTC [ns].
+    epoch_iso : str
+        The epoch as ISO 8601 text (``...Z``).
+    duration_s, step_s : float
+        Span and sample spacing [s].
+    n_steps : int
+        Samples N (the span is N x step_s).
+    elements : ElementSet
+        Every satellite of every group, in file order [km, rad].
+    sensor : Sensor
+        Visibility limits.
+    grid : GridSpec
+        The cells.
+    nfold_max : int
+        K of ``nfold_fraction``.
+    refine_transitions : bool
+        Gap boundaries at limit-crossing times.
+    requirement : Requirement or None
+        The coverage requirement.
+    band_width_deg : float
+        Latitude band width of the summary [deg].
+    maps : MapOptions
+        Figures to draw.
+    compute : ComputeOptions
+        Scheduler and resource options.
+    walker : WalkerTemplate or None
+        The first Walker group, if any.
+    n_groups : int
+        Groups in the constellation.
+    sweep, sizing : section or None
+        The trade blocks (their axes are already expanded lists).
+    resolved_yaml : str
+        The study with every default filled in (the provenance record).
+    """
+
+    name: str
+    epoch: Any
+    epoch_iso: str
+    duration_s: float
+    step_s: float
+    n_steps: int
+    elements: ElementSet
+    sensor: Sensor
+    grid: GridSpec
+    nfold_max: int
+    refine_transitions: bool
+    requirement: Requirement | None
+    band_width_deg: float
+    maps: MapOptions
+    compute: ComputeOptions
+    walker: WalkerTemplate | None
+    n_groups: int
+    sweep: SweepSection | None = None
+    sizing: SizingSection | None = None
+    resolved_yaml: str = field(default="", repr=False)
+
+    @property
+    def n_satellites(self) -> int:
+        """Number of satellites."""
+        return len(self.elements)
+
+    @property
+    def single_walker(self) -> bool:
+        """True when the constellation is exactly one Walker group."""
+        return self.walker is not None and self.n_groups == 1
+
+
+def nfold_max_of(n_satellites: int, requirement: Requirement | None) -> int:
+    """K of ``nfold_fraction``: 4 (no more than the satellites there are, at least 1), or the
+    requirement's k if larger."""
+    k = requirement.k if requirement is not None and requirement.k else 0
+    return max(min(DEFAULT_NFOLD_MAX, n_satellites), k, 1)
+
+
+def as_resolved(study: Study | ResolvedStudy) -> ResolvedStudy:
+    """``study`` itself if already resolved, else :func:`resolve` of it (entry points of the
+    Python API take either and resolve once)."""
+    return study if isinstance(study, ResolvedStudy) else resolve(study)
+
+
+def resolve(study: Study) -> ResolvedStudy:
+    """Build the resolved bundle of a validated study (see the module notes).
+
+    Raises
+    ------
+    StudyError
+        If the element sets cannot be built (naming the constellation group).
+    """
+    r = study.requirement
+    requirement = None if r is None else Requirement(
+        metric=r.metric, at_most=r.at_most, at_least=r.at_least,
+        area_fraction=r.area_fraction, k=r.k)
+    elements = build_elements(study)
+    s, g, c = study.sensor, study.grid, study.compute
+    return ResolvedStudy(
+        name=study.study,
+        epoch=parse_epoch(study.epoch),
+        epoch_iso=study.epoch,
+        duration_s=study.duration_s,
+        step_s=study.step_s,
+        n_steps=count_steps(study.duration_s, study.step_s),
+        elements=elements,
+        sensor=Sensor(min_elevation_deg=s.min_elevation_deg,
+                      max_off_nadir_deg=s.max_off_nadir_deg, max_range_km=s.max_range_km),
+        grid=GridSpec(resolution_deg=g.resolution_deg, lat_min_deg=g.lat_min_deg,
+                      lat_max_deg=g.lat_max_deg),
+        nfold_max=nfold_max_of(len(elements), requirement),
+        refine_transitions=study.refine_transitions,
+        requirement=requirement,
+        band_width_deg=study.output.band_width_deg,
+        maps=MapOptions(metrics=tuple(study.maps.metrics), projection=study.maps.projection),
+        compute=ComputeOptions(scheduler=c.scheduler, workers=c.workers,
+                               threads_per_worker=c.threads_per_worker,
+                               chunk_rows=c.chunk_rows, memory_limit_gb=c.memory_limit_gb),
+        walker=_walker_template(study),
+        n_groups=len(study.constellation),
+        sweep=study.sweep,
+        sizing=study.sizing,
+        resolved_yaml=study.dump_resolved_yaml(),
+    )
+
+
+def _walker_template(study: Study) -> WalkerTemplate | None:
+    """The first Walker group's pattern and template orbit, or None."""
+    for group in study.constellation:
+        if group.walker is not None and group.template is not None:
+            k, t = group.walker, group.template
+            return WalkerTemplate(
+                pattern=k.pattern, total=k.total, planes=k.planes, phasing=k.phasing,
+                altitude_km=t.a_km - WGS84_A_KM, eccentricity=t.eccentricity,
+                inclination_deg=t.inclination_deg, raan_deg=t.raan_deg,
+                arg_perigee_deg=t.arg_perigee_deg, mean_anomaly_deg=t.mean_anomaly_deg)
+    return None
+
+
+def build_elements(study: Study) -> ElementSet:
+    """The constellation's mean elements (degrees converted to radians here).
+
+    Returns
+    -------
+    ElementSet
+        Every satellite of every group, in file order.
+
+    Raises
+    ------
+    StudyError
+        If a group's elements are invalid, or a generated Walker id clashes with another.
+    """
+    sets = []
+    for gi, group in enumerate(study.constellation):
+        prefix = group_prefix(group, gi, len(study.constellation))
+        try:
+            sets.append(_group_elements(group, prefix))
+        except ElementError as exc:
+            raise StudyError(str(exc), field=format_path(("constellation", gi))) from None
+    all_ids = [i for s in sets for i in s.ids]
+    dup = _first_duplicate(all_ids)
+    if dup is not None:
+        raise StudyError(f"duplicate satellite id {dup!r} (a generated Walker id "
+                         "<group>-P<plane>-<slot> clashes with another id); give the groups "
+                         "distinct names or the satellites distinct ids",
+                         field="constellation")
+    return sets[0] if len(sets) == 1 else ElementSet.concat(sets)
+
+
+def group_prefix(group: GroupEntry, index: int, n_groups: int) -> str:
+    """Id prefix of a Walker group's satellites (ids ``<prefix>-P<plane>-<slot>``).
+
+    The group's name, else ``S`` for a single group or ``G<n>`` (n counted from 1).
+    """
+    if group.name is not None:
+        return group.name
+    return "S" if n_groups == 1 else f"G{index + 1}"
+
+
+def _group_elements(group: GroupEntry, prefix: str) -> ElementSet:
+    if group.walker is not None:
+        t = group.template
+        assert t is not None
+        return w.walker(
+            group.walker.pattern, group.walker.total, group.walker.planes, group.walker.phasing,
+            a_km=t.a_km, e=t.eccentricity, i_rad=t.inclination_deg * DEG,
+            raan0_rad=t.raan_deg * DEG, argp_rad=t.arg_perigee_deg * DEG,
+            M0_rad=t.mean_anomaly_deg * DEG, id_prefix=prefix,
+        )
+    sats = group.satellites or []
+    ids = tuple(s.id for s in sats)
+    if all(s.is_state_vector for s in sats):
+        r = np.array([s.position_km for s in sats], dtype=float)
+        v = np.array([s.velocity_km_s for s in sats], dtype=float)
+        return w.from_state_vectors(r, v, ids)
+    if not any(s.is_state_vector for s in sats):
+        return _keplerian_set(sats, ids)
+    parts = []
+    for s in sats:
+        if s.is_state_vector:
+            parts.append(w.from_state_vectors(np.array([s.position_km], dtype=float),
+                                              np.array([s.velocity_km_s], dtype=float), (s.id,)))
+        else:
+            parts.append(_keplerian_set([s], (s.id,)))
+    return ElementSet.concat(parts)
+
+
+def _keplerian_set(sats: list[SatelliteEntry], ids: tuple[str, ...]) -> ElementSet:
+    def arr(getter):
+        return np.array([getter(s) for s in sats], dtype=float)
+
+    a = arr(lambda s: s.semi_major_axis_km if s.semi_major_axis_km is not None
+            else WGS84_A_KM + s.altitude_km)
+    e = arr(lambda s: s.eccentricity or 0.0)
+    i = arr(lambda s: s.inclination_deg) * DEG
+    raan = arr(lambda s: s.raan_deg or 0.0) * DEG
+    argp = arr(lambda s: s.arg_perigee_deg or 0.0) * DEG
+    true_given = [s.true_anomaly_deg is not None for s in sats]
+    if all(true_given):
+        return w.from_keplerian(a, e, i, raan, argp,
+                                true_anomaly_rad=arr(lambda s: s.true_anomaly_deg) * DEG, ids=ids)
+    if not any(true_given):
+        return w.from_keplerian(a, e, i, raan, argp,
+                                mean_anomaly_rad=arr(lambda s: s.mean_anomaly_deg) * DEG, ids=ids)
+    parts = [_keplerian_set([s], (sid,)) for s, sid in zip(sats, ids, strict=True)]
+    return ElementSet.concat(parts)
+
+
+def _first_duplicate(ids) -> str | None:
+    seen: set[str] = set()
+    for x in ids:
+        if x in seen:
+            return x
+        seen.add(x)
+    return None

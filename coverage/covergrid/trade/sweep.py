@@ -1,0 +1,110 @@
+"""Batch trade studies: every combination of altitude, inclination, T/P/F and elevation.
+
+A *design* (:class:`~covergrid.trade.designs.WalkerDesign`) is one Walker constellation with
+one sensor elevation limit. Each design is one engine call on the study with the design's
+values substituted, run as a single latitude band (one task per design) so that the
+parallelism is across designs; its result reduces to one *row*
+(:func:`covergrid.trade.evaluate.evaluate_design`): the parameters, the area-weighted
+statistics of every metric and, when the study states a requirement, its verdict.
+
+Designs run concurrently on the study's scheduler (threads, processes, synchronous, a local
+dask.distributed cluster or an existing scheduler's address): each is submitted as one
+future and, as soon as it finishes, its row is written to the
+:class:`~covergrid.trade.store.ResultStore` under a key hashing every input that decides it
+(:meth:`~covergrid.trade.designs.EvalContext.inputs`). A rerun skips the designs already
+stored; an interrupted run loses only the designs still running.
+
+Outputs of ``covergrid sweep`` (:func:`run_sweep`) in ``DIR/<study>/``: ``sweep.csv`` and
+``sweep.nc`` (one row / one point on dimension ``design`` per design), ``store/`` (the
+per-design records) and ``trades/sweep/`` (trade figures, PNG 200 dpi and PDF).
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from covergrid import io
+from covergrid.study.build import as_resolved
+from covergrid.trade.figures import trade_figures
+from covergrid.trade.runner import design_runner, run_designs
+from covergrid.trade.space import designs_caption, evaluation_context, sweep_designs
+from covergrid.trade.store import MemoryStore, ResultStore
+from covergrid.trade.tables import write_table
+
+if TYPE_CHECKING:
+    from covergrid.study.build import ResolvedStudy
+    from covergrid.study.models import Study
+
+__all__ = ["SweepResult", "run_sweep"]
+
+
+@dataclass
+class SweepResult:
+    """What :func:`run_sweep` produced.
+
+    Attributes
+    ----------
+    rows : list of dict
+        One row per design, in design order (columns
+        :func:`~covergrid.trade.evaluate.row_columns`).
+    computed : int
+        Designs computed in this run (the others were read from the store).
+    out_dir : pathlib.Path or None
+        The study's output folder.
+    files : list of pathlib.Path
+        Files written (not counting the store records).
+    """
+
+    rows: list[dict]
+    computed: int
+    out_dir: Path | None = None
+    files: list[Path] | None = None
+
+
+def run_sweep(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = None, *,
+              scheduler: str | None = None, progress: bool = False,
+              figures: bool = True) -> SweepResult:
+    """Evaluate every design of the study's sweep block; write the table and figures.
+
+    Parameters
+    ----------
+    study : ResolvedStudy or Study
+        A study with a ``sweep:`` block (resolved here once if not yet).
+    out_dir : path-like, optional
+        Output root; outputs go to ``out_dir/<study>/`` (the store to
+        ``out_dir/<study>/store/``). Without it the store is kept in memory only.
+    scheduler : str, optional
+        Overrides ``compute.scheduler``.
+    progress : bool
+        Show a progress bar with ETA.
+    figures : bool
+        Draw the trade figures.
+
+    Returns
+    -------
+    SweepResult
+    """
+    study = as_resolved(study)
+    designs = sweep_designs(study)
+    context = evaluation_context(study)
+    folder = None
+    if out_dir is not None:
+        folder = io.study_output_dir(out_dir, study.name)
+        io.check_writable(folder)
+        store: Any = ResultStore(folder / "store")
+    else:
+        store = MemoryStore()
+    with design_runner(study.compute, scheduler) as runner:
+        rows, computed = run_designs(designs, context, store, runner, progress=progress,
+                                     desc=f"sweep {study.name}")
+    if folder is None:
+        return SweepResult(rows, computed)
+    files = write_table(rows, study, folder, "sweep")
+    files.append(io.write_text(study.resolved_yaml, folder / "study.resolved.yaml"))
+    if figures:
+        files += trade_figures(rows, study, folder / "trades" / "sweep",
+                               caption=designs_caption(study, designs, "Sweep"))
+    return SweepResult(rows, computed, folder, files)
