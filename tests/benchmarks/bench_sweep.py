@@ -21,7 +21,7 @@ import os
 import sys
 import time
 
-from covergrid.study import parse_study
+from covergrid.study import parse_study, resolve
 from covergrid.trade.runner import design_runner, run_designs
 from covergrid.trade.sizing import size_study
 from covergrid.trade.space import evaluation_context, sweep_designs
@@ -48,11 +48,12 @@ def run(n_subset: int = 120) -> dict:
     study = _study(sweep={"altitude_km": ALTITUDES_KM, "inclination_deg": INCLINATIONS_DEG,
                           "total": {"from": 12, "to": 48, "step": 1}, "planes": "all",
                           "phasing": "all"})
+    study = resolve(study)
     designs = sweep_designs(study)
     stride = max(1, len(designs) // n_subset)
     subset = designs[::stride][:n_subset]
     ctx = evaluation_context(study)
-    with design_runner(study) as runner:
+    with design_runner(study.compute) as runner:
         run_designs(subset[:2], ctx, MemoryStore(), runner)  # JIT load / warm-up
         t0 = time.perf_counter()
         rows, computed = run_designs(subset, ctx, MemoryStore(), runner)
