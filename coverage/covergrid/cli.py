@@ -434,7 +434,7 @@ def _cmd_elements(args: argparse.Namespace) -> int:
             return _fail(f"{missing}: is required with a state vector (three numbers)")
         r = np.array(args.position_km)
         v = np.array(args.velocity_km_s)
-        r_km, v_km_s = float(np.linalg.norm(r)), float(np.linalg.norm(v))
+        r_km, v_km_s = math.hypot(*r), math.hypot(*v)  # hypot: no overflow on the way
         if not 1.0 <= r_km < EARTH_SOI_RADIUS_KM:
             return _fail(f"--position-km: |r| = {r_km:.6g} km; allowed: 1 km <= |r| < "
                          f"{EARTH_SOI_RADIUS_KM:,.0f} km (the Earth's sphere of influence)")

@@ -480,9 +480,11 @@ def format_bytes(n: float) -> str:
 
 
 def format_seconds(s: float) -> str:
-    """A duration for people: ``40 s``, ``12 min``, ``3.5 h``, ``2.1 days``."""
+    """A duration for people: ``under 1 s``, ``40 s``, ``12 min``, ``3.5 h``, ``2.1 days``."""
+    if s < 1:
+        return "under 1 s"
     if s < 90:
-        return f"{max(s, 1.0):.0f} s"
+        return f"{s:.0f} s"
     if s < 5400:
         return f"{s / 60:.0f} min"
     if s < 172800:

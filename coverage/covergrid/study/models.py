@@ -243,7 +243,8 @@ def _altitude_problems(block: str, altitudes, e: float) -> list[tuple[tuple, str
         found = orbit_size_problems(alt, None, e, size_key="altitude_km")
         if found:
             (_, text, _), = found
-            where = "" if e == 0 else " with the template's eccentricity"
+            where = ("" if e == 0 else
+                     f" (the template's eccentricity {e:g} applies to every altitude)")
             return [((block, "altitude_km", i), f"{text}{where}", alt)]
     return []
 
