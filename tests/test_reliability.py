@@ -116,6 +116,37 @@ def test_a_signal_leaves_the_earlier_results_whole(tmp_path, sig, phase):
     assert sorted(p.name for p in out.iterdir()) == ["probe"]  # no staging, lock or temp
 
 
+@pytest.mark.slow  # a local cluster started and stopped: 10-30 s
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])
+def test_a_signal_to_a_local_cluster_run_is_one_line_and_stops_the_workers(tmp_path, sig):
+    """Cancelling a distributed computation made the client and every worker print
+    tracebacks and warnings; the command's one line must be all, and no worker may stay."""
+    psutil = pytest.importorskip("psutil")
+    out, before = _earlier_run(tmp_path)
+    study = _write(tmp_path, "cluster.yaml", EARLIER.replace("duration_h: 2", "duration_h: 480")
+                   + "compute: {scheduler: local-cluster, workers: 2, threads_per_worker: 1}\n")
+    proc = _start(study, out, "--no-maps")
+    me = psutil.Process(proc.pid)
+
+    def workers_computing() -> bool:  # two worker processes that have used CPU for bands
+        try:
+            kids = [k for k in me.children(recursive=True) if "spawn" in " ".join(k.cmdline())]
+            return len(kids) >= 2 and all(sum(k.cpu_times()[:2]) > 1.0 for k in kids[:2])
+        except psutil.Error:
+            return False
+
+    _wait_for(workers_computing, proc, "busy workers")
+    workers = me.children(recursive=True)
+    proc.send_signal(sig)
+    _, err = proc.communicate(timeout=WAIT_S)
+    assert proc.returncode == (130 if sig == signal.SIGINT else 143), err
+    assert len(err.strip().splitlines()) == 1, err
+    psutil.wait_procs(workers, timeout=60)
+    assert not [w for w in workers if w.is_running() and w.status() != psutil.STATUS_ZOMBIE]
+    assert _snapshot(out / "probe") == before
+    assert sorted(p.name for p in out.iterdir()) == ["probe"]
+
+
 @pytest.mark.slow  # two real runs at once: 10-20 s
 def test_a_second_writer_is_refused_at_once_and_the_first_one_wins(tmp_path):
     """Issue 16, defect 1: two runs at once mixed their files."""

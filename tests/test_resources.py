@@ -69,10 +69,17 @@ def test_the_time_estimate_follows_its_calibration(tmp_path):
     est = resources.estimate(study)
     assert est["compute_s"] == pytest.approx(
         (est["visits"] / resources.KERNEL_VISITS_PER_S_PER_CORE
+         + est["row_samples"] * resources.KERNEL_S_PER_SATELLITE_SAMPLE_ROW
          + est["cells"] * resources.KERNEL_S_PER_CELL) / est["tasks_at_once"], rel=1e-12)
+    # 6 satellites at 1200 km, 10 deg elevation: rho = asin(6378.137 / 7578.137) = 57.3 deg,
+    # eta = asin(cos 10 deg sin rho) = 56.0 deg, lambda = 90 - eta - 10 = 24.0 deg (Wertz
+    # and Larson, SMAD 3rd ed., sec. 5.2), so a circle spans 2 x 24.0 / 10 + 1 = 5.80 of
+    # the 18 rows of a 10 deg grid in each of the 120 samples
+    assert est["row_samples"] == pytest.approx(6 * 120 * 5.80, rel=0.001)
     longer = resources.estimate(_resolved(tmp_path, text=TINY_STUDY.replace("duration_h: 2",
                                                                             "duration_h: 4")))
     assert longer["visits"] == pytest.approx(2 * est["visits"], rel=1e-12)
+    assert longer["row_samples"] == pytest.approx(2 * est["row_samples"], rel=1e-12)
     assert est["seconds"] == est["compute_s"] + est["figures_s"]
 
 

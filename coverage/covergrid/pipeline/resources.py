@@ -40,7 +40,8 @@ if TYPE_CHECKING:
     from covergrid.study.build import ComputeOptions, ResolvedStudy
     from covergrid.study.models import Study
 
-__all__ = ["KERNEL_S_PER_CELL", "KERNEL_VISITS_PER_S_PER_CORE", "MAX_SAMPLES",
+__all__ = ["KERNEL_S_PER_CELL", "KERNEL_S_PER_SATELLITE_SAMPLE_ROW",
+           "KERNEL_VISITS_PER_S_PER_CORE", "MAX_SAMPLES",
            "MAX_SATELLITE_SAMPLES", "OUTPUT_BYTES_PER_CELL", "available_memory_bytes",
            "check_resources", "check_trade_resources", "concurrency", "estimate",
            "estimate_trade", "footprint_central_angle_rad", "format_bytes",
@@ -54,21 +55,28 @@ MAX_SAMPLES = 10**8
 MAX_SATELLITE_SAMPLES = 10**10
 
 # --- time: calibrated on the development machine (one core, synchronous scheduler) ------
-#: Kernel throughput [satellite-sample-cell visibilities per second per core]. Measured
-#: with the compiled kernel of this version: 0.8e8 (48 satellites, 2 deg, 60 s step),
-#: 1.0e8 (1,200 satellites, 1 deg, 30 s), 1.1e8 (24 satellites, 0.25 deg, 60 s) and
-#: 2.5e8 (48 satellites, 1 deg, 10 s: short steps move few cells in and out of view) after
-#: taking off the per-cell cost below; so the estimate is good to a factor of about 2.5,
-#: erring long for short steps. Re-measure when the kernel changes (issue 10 works on it).
-KERNEL_VISITS_PER_S_PER_CORE = 1.0e8
-#: Kernel time per cell whatever is seen (state set-up, finishing, the Dataset) [s]:
-#: measured 0.43-0.70 us on grids of 0.5, 0.25 and 0.1 deg with one satellite.
-KERNEL_S_PER_CELL = 7.0e-7
-#: Time to draw and save one figure (PNG and PDF) besides its cells [s], and per cell of a
-#: metric map [s]: measured 0.5 s a figure on a 10 deg grid and 1.2-3 us a cell at 0.25 and
-#: 0.1 deg with the current render code.
+# The kernel's time is modelled as three terms, fitted (least squares on relative error) to
+# seven measured runs of the compiled kernel of this version: 6 to 1,200 satellites, grids
+# of 2 to 0.25 deg, steps of 10 to 60 s. The fit reproduces them to within a factor of 0.5
+# to 1.2, so the estimate is a planning figure good to a factor of about 2. Visits alone
+# (the first term) were not enough: a satellite's cells in view are found from the two
+# edges of its interval in each latitude row it spans, so the work per sample grows with
+# the rows of its footprint more than with the cells inside it (a 0.25 deg grid with a
+# 30 deg sensor ran 2.5 times longer than visits at the best throughput predict).
+# Re-measure when the kernel changes (issue 10 works on it).
+#: Kernel throughput [satellite-sample-cell visibilities per second per core].
+KERNEL_VISITS_PER_S_PER_CORE = 9.0e8
+#: Kernel time per satellite, sample and latitude row of its footprint [s].
+KERNEL_S_PER_SATELLITE_SAMPLE_ROW = 1.3e-7
+#: Kernel time per cell whatever is seen (state set-up, finishing, the Dataset) [s].
+KERNEL_S_PER_CELL = 2.7e-6
+#: Time to draw and save a metric map (PNG and PDF) besides its cells, and any other
+#: figure [s], and per cell of a map [s]: measured 3 to 5 s a map on 1 and 0.25 deg grids
+#: and 0.5 s a figure on a 10 deg grid, on the shared development machine, with the render
+#: code of this version (issue 11 works on it).
+MAP_S = 2.5
 FIGURE_S = 0.5
-MAP_S_PER_CELL = 3.0e-6
+MAP_S_PER_CELL = 2.0e-6
 
 # --- memory ---------------------------------------------------------------------------
 #: Bytes per cell of the finished Dataset besides nfold_fraction: a float64 per real metric,
@@ -176,6 +184,18 @@ def _civ(a_km, sensor: Sensor, cells: int, band_share: float) -> np.ndarray:
     return np.minimum(cap_share / (band_share / cells), cells)
 
 
+def _footprint_rows(a_km, sensor: Sensor, study: ResolvedStudy) -> np.ndarray:
+    """Latitude rows each satellite's coverage circle spans (at most the grid's rows)."""
+    lam_deg = np.degrees(footprint_central_angle_rad(a_km, sensor))
+    return np.minimum(2.0 * lam_deg / study.grid.resolution_deg + 1.0, study.grid.n_lat)
+
+
+def _kernel_s(visits: float, row_samples: float, cells: float) -> float:
+    """One core's kernel time for the work counted [s] (see the calibration notes)."""
+    return (visits / KERNEL_VISITS_PER_S_PER_CORE + row_samples * KERNEL_S_PER_SATELLITE_SAMPLE_ROW
+            + cells * KERNEL_S_PER_CELL)
+
+
 def _band_share(study: ResolvedStudy) -> float:
     """Share of the sphere's area between the grid's latitudes."""
     g = study.grid
@@ -222,8 +242,9 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     (a satellite's circle lies over the grid about that share of the time); lambda from
     :func:`covergrid.orbits.geometry.footprint` at the mean altitude. It is an order-of-
     magnitude figure for planning (eccentric orbits and strongly inclined regional grids
-    deviate most). The time is ``visits / KERNEL_VISITS_PER_S_PER_CORE + cells x
-    KERNEL_S_PER_CELL`` shared over the tasks running at once, plus the figures.
+    deviate most). The time is the kernel's (visits, satellite x sample x footprint rows
+    and cells, each at its calibrated cost) shared over the tasks running at once, plus the
+    figures.
 
     The memory estimate adds a fixed baseline, 2.5 times the finished Dataset (dask holds
     the band results while it assembles the arrays, and the writers a half copy), per
@@ -265,9 +286,10 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
         "figures": _figures_bytes(n_sat, cells) if maps else 0,
     }
     memory = sum(parts.values())
-    compute_s = (visits / KERNEL_VISITS_PER_S_PER_CORE + cells * KERNEL_S_PER_CELL) / running
+    row_samples = float(np.sum(_footprint_rows(elements.a_km, study.sensor, study))) * n_steps
+    compute_s = _kernel_s(visits, row_samples, cells) / running
     n_maps = _map_count(study) if maps else 0
-    figures_s = (n_maps * (FIGURE_S + cells * MAP_S_PER_CELL) + 2 * FIGURE_S) if maps else 0.0
+    figures_s = (n_maps * (MAP_S + cells * MAP_S_PER_CELL) + 2 * FIGURE_S) if maps else 0.0
     available = available_memory_bytes()
     limit = (int(study.compute.memory_limit_gb * 1e9) if study.compute.memory_limit_gb
              else available)
@@ -289,6 +311,7 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
         "worker_processes": processes,
         "shortest_period_s": float(periods.min()),
         "visits": visits,
+        "row_samples": row_samples,
         "seconds": compute_s + figures_s,
         "compute_s": compute_s,
         "figures_s": figures_s,
@@ -306,19 +329,22 @@ def _map_count(study: ResolvedStudy) -> int:
     return sum(study.nfold_max if m == "nfold_fraction" else 1 for m in study.maps.metrics)
 
 
-def _check_work(study: ResolvedStudy, n_sat_max: int) -> None:
-    """Refuse spans with too many samples or satellite positions (see the limits)."""
-    n = study.n_steps
+def _check_work(study: ResolvedStudy, n_sat_max: int, step_s: float | None = None,
+                field: str = "step_s") -> None:
+    """Refuse spans with too many samples or satellite positions (see the limits); a
+    sizing search's coarse step is checked with ``step_s`` and its ``field``."""
+    step = study.step_s if step_s is None else step_s
+    n = study.n_steps if step_s is None else round(study.duration_s / step_s)
     if n > MAX_SAMPLES:
         raise ResourceError(
-            f"the span has {n:,} samples ({study.duration_s / 3600:g} h at {study.step_s:g} s); "
-            f"allowed: at most {MAX_SAMPLES:,}; use a longer step_s or a shorter duration_h",
-            field="step_s")
+            f"the span has {n:,} samples ({study.duration_s / 3600:g} h at {step:g} s); "
+            f"allowed: at most {MAX_SAMPLES:,}; use a longer {field} or a shorter duration_h",
+            field=field)
     if n_sat_max * n > MAX_SATELLITE_SAMPLES:
         raise ResourceError(
             f"{n_sat_max:,} satellites x {n:,} samples = {n_sat_max * n:,} positions; allowed: "
-            f"at most {MAX_SATELLITE_SAMPLES:,}; use a longer step_s, a shorter duration_h or "
-            "fewer satellites", field="step_s")
+            f"at most {MAX_SATELLITE_SAMPLES:,}; use a longer {field}, a shorter duration_h or "
+            "fewer satellites", field=field)
 
 
 def _check_memory(study: ResolvedStudy, est: dict[str, Any], what: str, force: bool,
@@ -412,14 +438,23 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
     study = as_resolved(study)
     alts, incs, els, totals, counts = _trade_space(study, block)
     cells = study.grid.n_cells
+    coarse = study.sizing.coarse if block == "sizing" and study.sizing is not None else None
+    if coarse is not None and study.sizing is not None and study.sizing.prune \
+            and coarse.resolution_deg is not None:
+        # a coarse grid finer than the study's (allowed, if odd) sets the bound
+        g = study.grid
+        rows = round((g.lat_max_deg - g.lat_min_deg) / coarse.resolution_deg)
+        cells = max(cells, rows * round(360.0 / coarse.resolution_deg))
     band_share = _band_share(study)
-    cells_civ = sum(float(_civ(np.array([WGS84_A_KM + a]),
-                               dataclasses.replace(study.sensor, min_elevation_deg=el),
-                               cells, band_share)[0]) for a in alts for el in els)
+    sensors = [dataclasses.replace(study.sensor, min_elevation_deg=el) for el in els]
+    a_km = np.array([WGS84_A_KM + a for a in alts])
+    cells_civ = sum(float(np.sum(_civ(a_km, s, cells, band_share))) for s in sensors)
+    rows_sum = sum(float(np.sum(_footprint_rows(a_km, s, study))) for s in sensors)
     n_points = len(incs)  # designs per (altitude, elevation, pattern)
     designs = len(alts) * len(incs) * len(els) * int(counts.sum())
     satellites_sum = n_points * float(np.sum(totals * counts))  # per (alt, el)
     visits = cells_civ * band_share * study.n_steps * satellites_sum
+    row_samples = rows_sum * study.n_steps * satellites_sum
     evaluations = designs
     largest = int(totals[counts > 0].max()) if np.any(counts > 0) else 0
     if block == "sizing":
@@ -427,6 +462,7 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         assert sz is not None
         evaluations = 2 * designs if sz.prune else designs
         visits *= 2 if sz.prune else 1
+        row_samples *= 2 if sz.prune else 1
         if sz.robust_to_one_loss:  # at most T single losses per design, at one total
             evaluations += len(alts) * len(incs) * int((counts * totals).max(initial=0))
     tasks, processes, remote = concurrency(study.compute)
@@ -441,8 +477,7 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         "workers": processes * WORKER_PROCESS_BYTES,
         "rows": evaluations * columns * ROW_VALUE_BYTES,
     }
-    seconds = (visits / KERNEL_VISITS_PER_S_PER_CORE
-               + evaluations * cells * KERNEL_S_PER_CELL) / tasks
+    seconds = _kernel_s(visits, row_samples, evaluations * cells) / tasks
     available = available_memory_bytes()
     limit = (int(study.compute.memory_limit_gb * 1e9) if study.compute.memory_limit_gb
              else available)
@@ -467,6 +502,9 @@ def check_trade_resources(study: ResolvedStudy | Study, block: str, *,
     study = as_resolved(study)
     est = estimate_trade(study, block)
     _check_work(study, est["largest_total"])
+    sz = study.sizing
+    if block == "sizing" and sz is not None and sz.prune and sz.coarse.step_s is not None:
+        _check_work(study, est["largest_total"], sz.coarse.step_s, "sizing.coarse.step_s")
     if block == "sweep":
         _check_memory(study, est, "the sweep", force, "sweep")
     else:
