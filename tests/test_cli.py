@@ -25,10 +25,14 @@ def _numbers(text: str, label: str) -> list[float]:
 def test_version_and_help_document_exit_statuses(capsys):
     assert cli.main(["--version"]) == 0
     assert capsys.readouterr().out.strip() == f"covergrid {__version__}"
-    for command in ([], ["run"], ["check"], ["elements"], ["schema"]):
+    for command in ([], ["run"], ["check"], ["elements"], ["schema"], ["sweep"], ["size"]):
         assert cli.main([*command, "--help"]) == 0
         out = capsys.readouterr().out
-        assert "exit status:" in out and "1  run: the study's requirement is not met" in out
+        assert "exit status:" in out and "1   run: the study's requirement is not met" in out
+        for status in ("\n  0   ", "\n  2   bad input or refused", "\n  3   a failure while "
+                       "running", "130 interrupted (SIGINT", "143 terminated (SIGTERM)",
+                       "--debug"):
+            assert status in out, (command, status)
 
 
 def test_usage_error_is_one_line_and_status_2(capsys):
@@ -101,9 +105,9 @@ def test_elements_to_state_vector_vallado_2_6(capsys):
         (["elements", "--a-km", "7000", "--i-deg", "50", "--nu-deg", "0", "--e", "1.5"],
          "--e: must be in [0, 1)"),
         (["elements", "--a-km", "-6000", "--i-deg", "50", "--nu-deg", "0"],
-         "--a-km: must be a positive length"),
+         "--a-km: must give a positive semi-major axis; allowed: a > 0; got -6000"),
         (["elements", "--position-km", "0", "0", "0", "--velocity-km-s", "1", "0", "0"],
-         "--position-km: must be non-zero"),
+         "--position-km: |r| = 0 km; allowed: 1 km <= |r| < 924,647 km"),
     ],
 )
 def test_elements_bad_input(argv, fragment, capsys):
@@ -140,7 +144,8 @@ def test_check_refuses_a_study_over_the_memory_limit(tmp_path, capsys):
                         + "compute: {memory_limit_gb: 0.1}\n")
     assert cli.main(["check", str(study)]) == 2
     err = capsys.readouterr().err
-    assert "grid.resolution_deg: the run needs about" in err and "--force" in err
+    assert "compute.memory_limit_gb: the run needs about" in err and "--force" in err
+    assert "compute.memory_limit_gb is 100 MB" in err  # not "0.10 GB"
 
 
 def test_run_end_to_end_writes_every_output(tmp_path, capsys):

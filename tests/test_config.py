@@ -111,7 +111,7 @@ def test_to_elements_listed_satellites_and_group_names():
     ("replace", "path", "fragment"),
     [
         ({"duration_h": 0}, "duration_h", "got 0"),
-        ({"step_s": -5}, "step_s", "allowed: value > 0.0"),
+        ({"step_s": -5}, "step_s", "allowed: value >= 0.001"),
         ({"step_s": 25000}, "step_s", "must not exceed the span"),
         ({"step_s": 7}, "step_s", "whole number of steps"),
         ({"study": "../up"}, "study", "path separators"),

@@ -1,5 +1,6 @@
 """Faults survived, with real processes: a dask worker killed mid-run, an output folder the
-process may not write to, and an output file system that fills up during the write.
+process may not write to, and an output file system that fills up during the write (exit 3,
+the earlier results kept whole).
 
 (A sweep stopped by SIGINT or SIGKILL is in test_sweep.py; a writer killed in the middle of a
 file, a file in the way of the output folder and the study name checks are in test_io.py and
@@ -12,6 +13,7 @@ import concurrent.futures
 import errno
 import math
 import os
+import re
 import signal
 import stat
 import subprocess
@@ -139,8 +141,8 @@ def test_an_unwritable_output_folder_is_exit_2_before_computing(tmp_path):
     finally:
         locked.chmod(0o755)
     line = _one_error_line(proc)
-    assert line == (f"covergrid: error: {locked}: cannot write: permission denied; choose a "
-                    "folder you can write to with --out")
+    assert line == (f"covergrid: error: {locked / 'out'}: cannot write: permission denied; "
+                    "choose a folder you can write to with --out")
     assert list(locked.iterdir()) == []
 
 
@@ -153,35 +155,51 @@ def _mount_tiny_tmpfs(where: Path, size: str) -> bool:
     return proc.returncode == 0
 
 
-@pytest.mark.slow  # a real covergrid process: 3-6 s
-def test_a_file_system_that_fills_up_is_exit_2_and_no_partial_file(tmp_path):
-    """A real tmpfs of 16 KiB: room for the probe and the folders, not for coverage.nc
-    (about 40 KiB here), so the netCDF library hits ENOSPC in the middle of the file."""
+def _snapshot(folder: Path) -> dict[str, bytes]:
+    return {p.relative_to(folder).as_posix(): p.read_bytes()
+            for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+@pytest.mark.slow  # three real covergrid processes: 10-20 s
+def test_a_file_system_that_fills_up_is_exit_3_and_keeps_the_earlier_results(tmp_path):
+    """A real tmpfs of 600 KiB: room for a run without maps (about 220 KiB), not for the
+    earlier results and a run with maps beside them, so a figure hits ENOSPC."""
     where = tmp_path / "small"
     where.mkdir()
-    if not _mount_tiny_tmpfs(where, "16k"):
+    if not _mount_tiny_tmpfs(where, "600k"):
         pytest.skip("cannot mount a tmpfs here (needs root with CAP_SYS_ADMIN); the "
                     "in-process disk-full test below covers the same path")
     try:
         study = tmp_path / "study.yaml"
         study.write_text(TINY_STUDY, encoding="utf-8")
-        proc = _covergrid(["run", str(study), "--out", str(where / "out"), "--no-maps",
-                           "--quiet"])
-        line = _one_error_line(proc)
-        final = where / "out" / "tiny-ring" / "coverage.nc"
-        assert line == (f"covergrid: error: {final}: cannot write: no space left on the "
-                        "device; free some space or choose another --out")
-        assert _files_under(where) == []  # neither the file nor its temporary is left
+        out = where / "out"
+        assert _covergrid(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]
+                          ).returncode == 0
+        before = _snapshot(out / "tiny-ring")
+        proc = _covergrid(["run", str(study), "--out", str(out), "--quiet"])
+        assert proc.returncode == 3, proc.stderr
+        assert "Traceback" not in proc.stderr and len(proc.stderr.strip().splitlines()) == 1
+        # issue 16, defect 4: disk full while saving figures ended in a traceback; here the
+        # data files fit and a figure (PNG or PDF) is the first to hit ENOSPC
+        assert re.fullmatch(rf"covergrid: error: {re.escape(str(out / 'tiny-ring'))}/\S+"
+                            r"\.(png|pdf): cannot write: no space left on the device; free "
+                            r"some space or choose another --out\n", proc.stderr), proc.stderr
+        assert _snapshot(out / "tiny-ring") == before  # the earlier run, whole
+        assert sorted(p.name for p in out.iterdir()) == ["tiny-ring"]  # no staging, no lock
     finally:
         subprocess.run(["umount", str(where)], capture_output=True, timeout=30, check=False)
 
 
-def test_disk_full_during_a_later_file_is_exit_2_and_no_partial_file(tmp_path, capsys,
-                                                                     monkeypatch):
-    """The disk fills while the second output is flushed: exit 2, one message, the first
-    output complete, nothing at the second's final path and no temporary left."""
+def test_disk_full_during_a_later_file_is_exit_3_and_keeps_the_earlier_results(
+        tmp_path, capsys, monkeypatch):
+    """The disk fills while the second output of a rerun is flushed: exit 3, one message
+    naming the file's final path, the earlier results untouched, nothing else left."""
     study = tmp_path / "study.yaml"
     study.write_text(TINY_STUDY, encoding="utf-8")
+    out = tmp_path / "out"
+    assert cli.main(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]) == 0
+    folder = out / "tiny-ring"
+    before = _snapshot(folder)
     real_fsync = os.fsync
     calls = []
 
@@ -193,16 +211,13 @@ def test_disk_full_during_a_later_file_is_exit_2_and_no_partial_file(tmp_path, c
         return real_fsync(fd)
 
     monkeypatch.setattr(io.atomic.os, "fsync", fsync_then_full)
-    out = tmp_path / "out"
-    assert cli.main(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]) == 2
+    assert cli.main(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]) == 3
     err = capsys.readouterr().err
-    folder = out / "tiny-ring"
     assert err == (f"covergrid: error: {folder / 'summary.json'}: cannot write: no space left "
                    "on the device; free some space or choose another --out\n")
-    assert _files_under(out) == ["tiny-ring/coverage.nc"]
     monkeypatch.undo()
-    with xr.open_dataset(folder / "coverage.nc") as ds:  # the finished file is whole
-        assert ds.attrs["covergrid_study_name"] == "tiny-ring"
+    assert _snapshot(folder) == before
+    assert sorted(p.name for p in out.iterdir()) == ["tiny-ring"]
 
 
 def test_a_netcdf_library_failure_is_a_clear_error_and_nothing_lands(tmp_path, monkeypatch):

@@ -105,16 +105,21 @@ def test_killed_writer_leaves_no_file_at_the_final_path(tmp_path):
 
 def test_output_folder_stays_inside_the_root(tmp_path):
     assert io.study_output_dir(tmp_path, "demo") == (tmp_path / "demo").resolve()
-    for bad in ("..", "../x", "a/b", "", ".", "x\x00"):
-        with pytest.raises(io.OutputError, match="study"):
+    for bad in ("..", "../x", "a/b", "", ".", "x\x00", ".hidden"):
+        with pytest.raises(io.OutputRefused, match="study"):
             io.study_output_dir(tmp_path, bad)
 
 
 def test_a_file_in_the_way_is_a_clear_error(tmp_path):
     blocker = tmp_path / "outputs"
     blocker.write_text("not a folder")
-    with pytest.raises(io.OutputError, match="a part of the path is a file"):
-        io.check_writable(blocker / "demo")
+    with pytest.raises(io.OutputRefused, match="a part of the path is a file"), \
+            io.ResultFolder(blocker, "demo"):
+        pass
+    (tmp_path / "out").mkdir()
+    (tmp_path / "out" / "demo").write_text("a file where the results go")
+    with pytest.raises(io.OutputRefused, match="a file is in the way of the result folder"):
+        io.ResultFolder(tmp_path / "out", "demo")
     with pytest.raises(io.OutputError, match="cannot write"):
         io.write_json({}, blocker / "demo" / "summary.json")
 
@@ -125,8 +130,9 @@ def test_read_only_folder_is_a_clear_error(tmp_path):
     ro.mkdir()
     ro.chmod(0o500)
     try:
-        with pytest.raises(io.OutputError, match="permission denied"):
-            io.check_writable(ro / "demo")
+        with pytest.raises(io.OutputRefused, match="permission denied"), \
+                io.ResultFolder(ro, "demo"):
+            pass
     finally:
         ro.chmod(0o700)
 

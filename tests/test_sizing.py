@@ -11,9 +11,10 @@ import yaml
 
 from covergrid.errors import StudyError
 from covergrid.orbits.special import period_s
+from covergrid.orbits.walker import walker_options
 from covergrid.study import parse_study
 from covergrid.trade import sizing
-from covergrid.trade.designs import WalkerDesign, walker_options
+from covergrid.trade.designs import WalkerDesign
 from covergrid.trade.evaluate import evaluate_design
 from covergrid.trade.space import evaluation_context
 

@@ -1,5 +1,5 @@
 """Sweeps: design expansion, rows equal to single runs, resume after an interruption, outputs,
-and a real ``covergrid sweep`` process stopped by SIGINT and SIGKILL then rerun."""
+and a real ``covergrid sweep`` process stopped by SIGINT, SIGTERM and SIGKILL then rerun."""
 
 from __future__ import annotations
 
@@ -208,7 +208,8 @@ def _records(folder: Path) -> list[Path]:
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGKILL], ids=["SIGINT", "SIGKILL"])
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM, signal.SIGKILL],
+                         ids=["SIGINT", "SIGTERM", "SIGKILL"])
 def test_stopped_sweep_process_loses_nothing_finished(tmp_path, sig):
     path = tmp_path / "stopped.yaml"
     path.write_text(yaml.safe_dump(SLOW_SWEEP))
@@ -223,7 +224,7 @@ def test_stopped_sweep_process_loses_nothing_finished(tmp_path, sig):
     assert proc.poll() is None, "the sweep finished before it could be stopped"
     proc.send_signal(sig)
     _, err = proc.communicate(timeout=120)
-    expected_rc = 130 if sig == signal.SIGINT else -signal.SIGKILL
+    expected_rc = {signal.SIGINT: 130, signal.SIGTERM: 143}.get(sig, -signal.SIGKILL)
     assert proc.returncode == expected_rc, err.decode()
     kept = _records(store)
     assert 4 <= len(kept) < N_SLOW
@@ -231,6 +232,8 @@ def test_stopped_sweep_process_loses_nothing_finished(tmp_path, sig):
     for p in kept:
         assert json.loads(p.read_text())["row"]["total"] == 24
     assert not (out / "stopped" / "sweep.csv").exists()
+    if sig != signal.SIGKILL:  # cleaned up at once; after SIGKILL, by the next run
+        assert sorted(p.name for p in out.iterdir()) == ["stopped"]
     rerun = subprocess.run(_cli("sweep", str(path), "--out", str(out), "--no-figures"),
                            env=env, capture_output=True, text=True, timeout=300)
     assert rerun.returncode == 0, rerun.stderr
@@ -238,6 +241,7 @@ def test_stopped_sweep_process_loses_nothing_finished(tmp_path, sig):
             in rerun.stdout)
     assert len(_records(store)) == N_SLOW
     assert not [p for p in store.iterdir() if p.suffix == ".tmp"]
+    assert sorted(p.name for p in out.iterdir()) == ["stopped"]
 
 
 def test_sweep_command_reports_and_refuses_a_study_without_a_sweep(tmp_path, capsys):

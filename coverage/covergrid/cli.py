@@ -5,6 +5,12 @@ Commands: ``run`` (compute a study and write its outputs, :mod:`covergrid.pipeli
 :mod:`covergrid.trade.sizing`), ``check`` (validate and estimate
 without computing), ``elements`` (state vector <-> Keplerian elements for one orbit) and
 ``schema`` (print the study file's JSON Schema).
+
+Every failure ends the command with one line on stderr and its exit status
+(:mod:`covergrid.errors`): 2 for bad input or work refused before it starts, 3 for a
+failure while running, 130 and 143 for SIGINT and SIGTERM (whose handler raises
+:class:`~covergrid.errors.Terminated`, so that the same cleanup runs as for Ctrl-C). No
+traceback is shown unless ``--debug`` is given.
 """
 
 from __future__ import annotations
@@ -12,28 +18,61 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import signal
 import sys
+import threading
+import traceback
 from collections.abc import Sequence
 
 from covergrid import __version__
-from covergrid.errors import CovergridError
+from covergrid.constants import EARTH_SOI_RADIUS_KM
+from covergrid.errors import (
+    EXIT_BAD_INPUT,
+    EXIT_OK,
+    EXIT_REQUIREMENT_NOT_MET,
+    EXIT_RUN_FAILED,
+    EXIT_SIGINT,
+    EXIT_SIGTERM,
+    CovergridError,
+    Terminated,
+)
 
 __all__ = ["main", "build_parser"]
 
-EXIT_OK = 0
-EXIT_REQUIREMENT_NOT_MET = 1
-EXIT_BAD_INPUT = 2
-EXIT_INTERRUPTED = 130
+EXIT_INTERRUPTED = EXIT_SIGINT
 
 _EPILOG = """\
 exit status:
-  0  success (and, for run, the study's requirement is met or none is given)
-  1  run: the study's requirement is not met (all outputs are still written)
-     size: no design up to sizing.total.max meets the requirement
-  2  bad input: invalid study file or option, not enough memory, output folder not
-     writable; one message on stderr names the field by its dotted path; nothing written
-  130 interrupted (Ctrl-C); no partial file is left at a final path
+  0   success (and, for run, the study's requirement is met or none is given)
+  1   run: the study's requirement is not met (all outputs are still written)
+      size: no design up to sizing.total.max meets the requirement
+  2   bad input or refused before any work: invalid study file or option, work or memory
+      over the limits (see check), output folder not writable or taken by another run;
+      nothing is written
+  3   a failure while running: out of memory, disk full, an output that cannot be
+      written; the earlier results in DIR/<study>/ are kept
+  130 interrupted (SIGINT, Ctrl-C); 143 terminated (SIGTERM); the earlier results kept
+Every failure is one line on stderr naming the cause (for input, the study key or option);
+--debug adds the traceback.
 """
+
+#: Largest speed the elements command takes [km/s]: far above any Earth orbit's (the
+#: escape speed at the surface is 11.2 km/s, common practice).
+MAX_SPEED_KM_S = 100.0
+#: The gravitational parameter the elements command takes: WGS 84's to within 1 %
+#: (398600.4415 of Vallado's examples is inside); results are Earth orbits.
+MU_RANGE_KM3_S2 = (0.99 * 398600.4418, 1.01 * 398600.4418)
+
+
+def _finite(text: str) -> float:
+    """argparse type: a finite number (no NaN, no infinity)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a number; got {text[:40]!r}") from None
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"must be a finite number; got {text[:40]!r}")
+    return value
 
 
 class _Parser(argparse.ArgumentParser):
@@ -49,11 +88,15 @@ def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="covergrid", formatter_class=fmt, epilog=_EPILOG, allow_abbrev=False,
                 description="Satellite-constellation coverage analysis on a global grid.")
     p.add_argument("--version", action="version", version=f"covergrid {__version__}")
+    p.add_argument("--debug", action="store_true", help="show the traceback of a failure")
+    common = _Parser(add_help=False)
+    common.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                        help="show the traceback of a failure")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
 
     r = sub.add_parser("run", help="compute a study and write its outputs", epilog=_EPILOG,
-                       formatter_class=fmt,
+                       formatter_class=fmt, parents=[common],
                        description="Compute a study's coverage metrics and write DIR/<study>/: "
                        "coverage.nc, summary.json, summary.csv, study.resolved.yaml, maps/.")
     r.add_argument("study", metavar="STUDY.yaml", help="the study file")
@@ -63,36 +106,39 @@ def build_parser() -> argparse.ArgumentParser:
                    help="override compute.scheduler: threads, synchronous, processes, "
                    "local-cluster or tcp://host:port")
     r.add_argument("--force", action="store_true",
-                   help="run even if the memory estimate exceeds the memory available")
+                   help="run even if the memory estimate exceeds the limit (the work limits "
+                   "still hold)")
     r.add_argument("--no-maps", action="store_true", help="skip the figures")
     r.add_argument("--quiet", action="store_true", help="no progress bar and no report")
 
     c = sub.add_parser("check", help="validate a study and estimate its cost", epilog=_EPILOG,
-                       formatter_class=fmt,
+                       formatter_class=fmt, parents=[common],
                        description="Validate a study file and print what a run would compute "
-                       "(satellites, steps, cells, estimated work and memory) without "
-                       "computing it.")
+                       "(satellites, samples, cells, estimated work, time and memory; for a "
+                       "sweep or sizing block, its designs) without computing it. Exit 2 if "
+                       "a run would be refused.")
     c.add_argument("study", metavar="STUDY.yaml", help="the study file")
     c.add_argument("--json", action="store_true", help="print the estimate as JSON")
 
     e = sub.add_parser(
         "elements", help="convert one orbit between state vector and Keplerian elements",
-        epilog=_EPILOG, formatter_class=fmt,
+        epilog=_EPILOG, formatter_class=fmt, parents=[common],
         description="Give --position-km and --velocity-km-s to get the Keplerian elements, or "
         "--a-km, --e, --i-deg, --raan-deg, --argp-deg and --nu-deg (or --mean-anomaly-deg) "
         "to get the inertial position and velocity.")
-    e.add_argument("--position-km", nargs=3, type=float, metavar=("X", "Y", "Z"))
-    e.add_argument("--velocity-km-s", nargs=3, type=float, metavar=("VX", "VY", "VZ"))
-    e.add_argument("--a-km", type=float, help="semi-major axis [km]")
-    e.add_argument("--altitude-km", type=float, help="a minus the WGS-84 equatorial radius [km]")
-    e.add_argument("--e", type=float, default=None, help="eccentricity (default 0)")
-    e.add_argument("--i-deg", type=float, help="inclination [deg]")
-    e.add_argument("--raan-deg", type=float, default=0.0, help="RAAN [deg] (default 0)")
-    e.add_argument("--argp-deg", type=float, default=0.0,
+    e.add_argument("--position-km", nargs=3, type=_finite, metavar=("X", "Y", "Z"))
+    e.add_argument("--velocity-km-s", nargs=3, type=_finite, metavar=("VX", "VY", "VZ"))
+    e.add_argument("--a-km", type=_finite, help="semi-major axis [km]")
+    e.add_argument("--altitude-km", type=_finite,
+                   help="a minus the WGS-84 equatorial radius [km]")
+    e.add_argument("--e", type=_finite, default=None, help="eccentricity (default 0)")
+    e.add_argument("--i-deg", type=_finite, help="inclination [deg]")
+    e.add_argument("--raan-deg", type=_finite, default=0.0, help="RAAN [deg] (default 0)")
+    e.add_argument("--argp-deg", type=_finite, default=0.0,
                    help="argument of perigee [deg] (default 0)")
-    e.add_argument("--nu-deg", type=float, help="true anomaly [deg]")
-    e.add_argument("--mean-anomaly-deg", type=float, help="mean anomaly [deg]")
-    e.add_argument("--mu-km3-s2", type=float, default=None,
+    e.add_argument("--nu-deg", type=_finite, help="true anomaly [deg]")
+    e.add_argument("--mean-anomaly-deg", type=_finite, help="mean anomaly [deg]")
+    e.add_argument("--mu-km3-s2", type=_finite, default=None,
                    help="gravitational parameter [km^3/s^2] (default WGS 84: 398600.4418)")
 
     for name, what, files in (
@@ -100,7 +146,7 @@ def build_parser() -> argparse.ArgumentParser:
              "sweep.csv, sweep.nc, store/, trades/"),
             ("size", "find the smallest constellation meeting the requirement (sizing block)",
              "sizing.csv, sizing.json, sizing_designs.csv/.nc, store/, trades/")):
-        t = sub.add_parser(name, help=what, epilog=_EPILOG, formatter_class=fmt,
+        t = sub.add_parser(name, help=what, epilog=_EPILOG, formatter_class=fmt, parents=[common],
                            description=f"{what[0].upper()}{what[1:]} and write DIR/<study>/: "
                            f"{files}. Finished designs are kept in store/; a rerun computes "
                            "only the designs not stored yet.")
@@ -111,18 +157,26 @@ def build_parser() -> argparse.ArgumentParser:
                        help="override compute.scheduler: threads, synchronous, processes, "
                        "local-cluster or tcp://host:port")
         t.add_argument("--no-figures", action="store_true", help="skip the trade figures")
+        t.add_argument("--force", action="store_true",
+                       help="run even if the memory estimate exceeds the limit (the work and "
+                       "design limits still hold)")
         t.add_argument("--quiet", action="store_true", help="no progress bar and no report")
 
     sub.add_parser("schema", help="print the JSON Schema of a study file", epilog=_EPILOG,
-                   formatter_class=fmt,
+                   formatter_class=fmt, parents=[common],
                    description="Print the JSON Schema (draft 2020-12) of a study file, for "
                    "editors that check YAML against a schema.")
     return p
 
 
-def _fail(message: str) -> int:
-    sys.stderr.write(f"covergrid: error: {message}\n")
-    return EXIT_BAD_INPUT
+def _fail(message: str, status: int = EXIT_BAD_INPUT) -> int:
+    """Print one error line (newlines folded) and return the exit status."""
+    sys.stderr.write(f"covergrid: error: {' '.join(message.split())}\n")
+    return status
+
+
+def _on_sigterm(signum, frame):  # noqa: ARG001 - the signal handler's signature
+    raise Terminated
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -132,22 +186,63 @@ def main(argv: Sequence[str] | None = None) -> int:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # --help, --version and usage errors
         return int(exc.code or 0) if isinstance(exc.code, int) else EXIT_BAD_INPUT
+    in_main = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGTERM, _on_sigterm) if in_main else None
     try:
-        if args.command == "run":
-            return _cmd_run(args)
-        if args.command == "check":
-            return _cmd_check(args)
-        if args.command == "elements":
-            return _cmd_elements(args)
-        if args.command in ("sweep", "size"):
-            return _cmd_trade(args)
-        if args.command == "schema":
-            return _cmd_schema()
+        return _dispatch(args)
     except CovergridError as exc:
-        return _fail(str(exc))
+        _debug(args)
+        return _fail(str(exc), exc.exit_status)
+    except Terminated:
+        _debug(args)
+        sys.stderr.write("covergrid: terminated (SIGTERM); nothing of this run was kept, "
+                         "earlier results are as they were\n")
+        return EXIT_SIGTERM
     except KeyboardInterrupt:
-        sys.stderr.write("covergrid: interrupted\n")
-        return EXIT_INTERRUPTED
+        _debug(args)
+        sys.stderr.write("covergrid: interrupted; nothing of this run was kept, earlier "
+                         "results are as they were\n")
+        return EXIT_SIGINT
+    except MemoryError:
+        _debug(args)
+        return _fail("out of memory while running; use a coarser grid.resolution_deg, fewer "
+                     "satellites or a machine with more memory (covergrid check estimates "
+                     "the need)", EXIT_RUN_FAILED)
+    except OSError as exc:
+        from pathlib import Path
+
+        from covergrid.io import explain_os_error
+
+        _debug(args)
+        where = Path(str(exc.filename)) if exc.filename else Path("output")
+        return _fail(str(explain_os_error(exc, where)), EXIT_RUN_FAILED)
+    except Exception as exc:  # a failure of a library or of covergrid itself
+        _debug(args)
+        text = f"{type(exc).__name__}: {exc}"
+        text = text if len(text) <= 300 else text[:297] + "..."
+        return _fail(f"the run failed: {text} (run again with --debug for the traceback)",
+                     EXIT_RUN_FAILED)
+    finally:
+        if in_main:
+            signal.signal(signal.SIGTERM, previous)
+
+
+def _debug(args: argparse.Namespace) -> None:
+    if getattr(args, "debug", False):
+        traceback.print_exc()
+
+
+def _dispatch(args: argparse.Namespace) -> int:
+    if args.command == "run":
+        return _cmd_run(args)
+    if args.command == "check":
+        return _cmd_check(args)
+    if args.command == "elements":
+        return _cmd_elements(args)
+    if args.command in ("sweep", "size"):
+        return _cmd_trade(args)
+    if args.command == "schema":
+        return _cmd_schema()
     raise AssertionError(f"unhandled command {args.command!r}")  # argparse guards this
 
 
@@ -193,7 +288,8 @@ def _cmd_trade(args: argparse.Namespace) -> int:
     if args.command == "sweep":
         from covergrid.trade.sweep import run_sweep
 
-        res = run_sweep(resolved, args.out, progress=not args.quiet, figures=not args.no_figures)
+        res = run_sweep(resolved, args.out, progress=not args.quiet,
+                        figures=not args.no_figures, force=args.force)
         if not args.quiet:
             met = sum(1 for r in res.rows if r.get("meets") is True)
             print(f"covergrid: {len(res.rows)} designs ({res.computed} computed, "
@@ -204,7 +300,8 @@ def _cmd_trade(args: argparse.Namespace) -> int:
         return EXIT_OK
     from covergrid.trade.sizing import run_sizing
 
-    sized = run_sizing(resolved, args.out, progress=not args.quiet, figures=not args.no_figures)
+    sized = run_sizing(resolved, args.out, progress=not args.quiet,
+                       figures=not args.no_figures, force=args.force)
     sizing_max = resolved.sizing.total.max if resolved.sizing is not None else None
     if not args.quiet:
         print(f"covergrid: wrote {len(sized.files or [])} files to {sized.out_dir}")
@@ -224,24 +321,42 @@ def _cmd_trade(args: argparse.Namespace) -> int:
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    from covergrid.pipeline.resources import check_resources, estimate
+    """Validate, print the estimate (text or JSON), then refuse as ``run`` would (exit 2)."""
+    from covergrid.io import json_safe
+    from covergrid.pipeline.resources import (
+        check_resources,
+        check_trade_resources,
+        estimate,
+        estimate_trade,
+    )
     from covergrid.study.build import resolve
     from covergrid.study.loading import load_study
 
     study = load_study(args.study)
     resolved = resolve(study)
     est = estimate(resolved)
+    blocks = [b for b in ("sweep", "sizing") if getattr(resolved, b) is not None]
+    trades = {b: estimate_trade(resolved, b) for b in blocks}
     if args.json:
-        print(json.dumps(est, indent=2))
+        print(json.dumps(json_safe({**est, **trades}), indent=2, allow_nan=False))
     else:
-        print(_estimate_text(study, est))
+        print(_estimate_text(study, est, trades))
     check_resources(resolved, est)
+    for b in blocks:
+        check_trade_resources(resolved, b)
     return EXIT_OK
 
 
-def _estimate_text(study, est: dict) -> str:
+def _estimate_text(study, est: dict, trades: dict) -> str:
+    from covergrid.pipeline.resources import format_bytes, format_seconds
+
     def gb(n):
-        return "unknown" if n is None else f"{n / 1e9:.2f} GB"
+        return "unknown" if n is None else format_bytes(n)
+
+    def memory(e: dict) -> str:
+        parts = ", ".join(f"{k} {format_bytes(v)}" for k, v in e["memory_parts"].items() if v)
+        return (f"about {gb(e['memory_bytes'])} ({parts}; limit {gb(e['memory_limit_bytes'])}"
+                f", available {gb(e['memory_available_bytes'])})")
 
     groups = []
     for g in study.constellation:
@@ -263,14 +378,17 @@ def _estimate_text(study, est: dict) -> str:
         f"  constellation   {est['satellites']} satellites: " + "; ".join(groups),
         f"  sensor          {', '.join(limits)}",
         f"  span            {study.duration_h:g} h from {study.epoch}, step {study.step_s:g} s"
-        f" -> {est['steps']:,} samples",
+        f" -> {est['steps']:,} samples, {est['satellite_samples']:,} satellite positions "
+        f"(limits {est['limits']['max_samples']:,} and "
+        f"{est['limits']['max_satellite_samples']:,})",
         f"  grid            {study.grid.resolution_deg:g} deg, latitudes "
         f"{study.grid.lat_min_deg:g} to {study.grid.lat_max_deg:g} deg -> "
         f"{est['grid_rows']} x {est['grid_columns']} = {est['cells']:,} cells",
         f"  work            about {est['visits']:.3g} satellite-sample-cell visibilities in "
-        f"{est['bands']} latitude bands",
-        f"  memory          about {gb(est['memory_bytes'])} (limit {gb(est['memory_limit_bytes'])}"
-        f", available {gb(est['memory_available_bytes'])})",
+        f"{est['bands']} latitude bands, {est['tasks_at_once']} at once",
+        f"  time            about {format_seconds(est['seconds'])} (computing "
+        f"{format_seconds(est['compute_s'])}, figures {format_seconds(est['figures_s'])})",
+        f"  memory          {memory(est)}",
     ]
     if study.requirement is not None:
         r = study.requirement
@@ -278,6 +396,12 @@ def _estimate_text(study, est: dict) -> str:
         k = f" (k = {r.k})" if r.k is not None else ""
         lines.append(f"  requirement     {r.metric}{k} {sense[0]} {sense[1]:g} over "
                      f"{100 * r.area_fraction:g} % of the area")
+    for block, t in trades.items():
+        what = ("designs" if block == "sweep" else
+                f"designs in the search space, at most {t['evaluations']:,} evaluations")
+        lines.append(f"  {block:<15} {t['designs']:,} {what}; about {t['visits']:.3g} "
+                     f"visibilities, time about {format_seconds(t['seconds'])} with "
+                     f"{t['designs_at_once']} at once; memory {memory(t)}")
     return "\n".join(lines)
 
 
@@ -289,8 +413,15 @@ def _cmd_elements(args: argparse.Namespace) -> int:
     from covergrid.orbits.elements import cartesian_to_kepler, kepler_to_cartesian, validate_state
 
     mu = MU_EARTH_KM3_S2 if args.mu_km3_s2 is None else args.mu_km3_s2
-    if not (math.isfinite(mu) and mu > 0):
-        return _fail(f"--mu-km3-s2: must be a positive number; got {mu!r}")
+    lo, hi = MU_RANGE_KM3_S2
+    if not lo <= mu <= hi:
+        return _fail(f"--mu-km3-s2: must be the Earth's gravitational parameter; allowed: "
+                     f"{lo:.1f} to {hi:.1f} (WGS 84's 398600.4418 within 1 %); got {mu:g}")
+    for name in ("raan_deg", "argp_deg", "nu_deg", "mean_anomaly_deg"):
+        value = getattr(args, name)
+        if value is not None and not -360.0 <= value <= 360.0:
+            return _fail(f"--{name.replace('_', '-')}: out of range; allowed: -360 to 360; "
+                         f"got {value:g}")
     state_given = args.position_km is not None or args.velocity_km_s is not None
     kepler_given = [n for n in ("a_km", "altitude_km", "e", "i_deg", "nu_deg",
                                 "mean_anomaly_deg") if getattr(args, n) is not None]
@@ -303,8 +434,13 @@ def _cmd_elements(args: argparse.Namespace) -> int:
             return _fail(f"{missing}: is required with a state vector (three numbers)")
         r = np.array(args.position_km)
         v = np.array(args.velocity_km_s)
-        if not (np.all(np.isfinite(r)) and np.all(np.isfinite(v))):
-            return _fail("--position-km/--velocity-km-s: must be finite numbers")
+        r_km, v_km_s = math.hypot(*r), math.hypot(*v)  # hypot: no overflow on the way
+        if not 1.0 <= r_km < EARTH_SOI_RADIUS_KM:
+            return _fail(f"--position-km: |r| = {r_km:.6g} km; allowed: 1 km <= |r| < "
+                         f"{EARTH_SOI_RADIUS_KM:,.0f} km (the Earth's sphere of influence)")
+        if not v_km_s < MAX_SPEED_KM_S:
+            return _fail(f"--velocity-km-s: |v| = {v_km_s:.6g} km/s; allowed: |v| < "
+                         f"{MAX_SPEED_KM_S:g} km/s (far above any Earth orbit's speed)")
         try:  # zero or parallel vectors: a clear error naming the option
             validate_state(r, v)
         except CovergridError as exc:
@@ -332,6 +468,8 @@ def _cmd_elements(args: argparse.Namespace) -> int:
             ]
             if a * (1 - e) < WGS84_A_KM:
                 rows.append(("note", "perigee below the Earth's surface", ""))
+            if a * (1 + e) >= EARTH_SOI_RADIUS_KM:
+                rows.append(("note", "apogee beyond the Earth's sphere of influence", ""))
         else:
             rows.append(("orbit", "open (e >= 1): no period or apogee", ""))
         print(_table(rows))
@@ -342,6 +480,7 @@ def _cmd_elements(args: argparse.Namespace) -> int:
                      "covergrid elements --help")
     if (args.a_km is None) == (args.altitude_km is None):
         return _fail("--a-km: give exactly one of --a-km or --altitude-km")
+    size_option = "--a-km" if args.a_km is not None else "--altitude-km"
     a = args.a_km if args.a_km is not None else WGS84_A_KM + args.altitude_km
     e = 0.0 if args.e is None else args.e
     if args.i_deg is None:
@@ -349,11 +488,19 @@ def _cmd_elements(args: argparse.Namespace) -> int:
     if (args.nu_deg is None) == (args.mean_anomaly_deg is None):
         return _fail("--nu-deg: give exactly one of --nu-deg or --mean-anomaly-deg")
     if not (math.isfinite(e) and 0.0 <= e < 1.0):
-        return _fail(f"--e: must be in [0, 1) for a closed orbit; got {e!r}")
-    if not (math.isfinite(a) and a > 0):
-        return _fail(f"--a-km: must be a positive length; got {a!r}")
+        return _fail(f"--e: must be in [0, 1) for a closed orbit; got {e:g}")
+    if not a > 0:
+        given = (f"{args.a_km:g}" if args.a_km is not None else
+                 f"{args.altitude_km:g}, so a = {a:.6g} km")
+        allowed = "a > 0" if args.a_km is not None else f"--altitude-km > -{WGS84_A_KM}"
+        return _fail(f"{size_option}: must give a positive semi-major axis; allowed: "
+                     f"{allowed}; got {given}")
+    if not a * (1.0 + e) < EARTH_SOI_RADIUS_KM:
+        return _fail(f"{size_option}: the apogee radius a(1+e) = {a * (1 + e):.6g} km is beyond "
+                     f"the Earth's sphere of influence; allowed: a(1+e) < "
+                     f"{EARTH_SOI_RADIUS_KM:,.0f} km")
     if not 0.0 <= args.i_deg <= 180.0:
-        return _fail(f"--i-deg: must be in [0, 180]; got {args.i_deg!r}")
+        return _fail(f"--i-deg: must be in [0, 180]; got {args.i_deg:g}")
     nu = (args.nu_deg * DEG if args.nu_deg is not None
           else float(mean_to_true(args.mean_anomaly_deg * DEG, e)))
     r, v = kepler_to_cartesian(a, e, args.i_deg * DEG, args.raan_deg * DEG,

@@ -37,6 +37,15 @@ SIDEREAL_DAY_S = 86164.0905
 
 # --- Astronomy ------------------------------------------------------------------------
 AU_KM = 149597870.7  # astronomical unit, IAU 2012 Resolution B2 (exact by definition)
+# Nominal solar mass parameter GM_sun = 1.3271244e20 m^3/s^2, IAU 2015 Resolution B3
+# (from memory).
+MU_SUN_KM3_S2 = 1.3271244e11
+# Radius of the Earth's sphere of influence with respect to the Sun, Laplace's
+# r = a (m / M)^(2/5) with a = 1 AU (Curtis, Orbital Mechanics for Engineering Students,
+# 3rd ed., sec. 8.4; from memory): 924,600 km, which Curtis's Table A.2 rounds to
+# 925,000 km (from memory). No orbit reaching beyond it is an Earth orbit, so studies and
+# the elements command refuse apogees and positions beyond it.
+EARTH_SOI_RADIUS_KM = AU_KM * (MU_EARTH_KM3_S2 / MU_SUN_KM3_S2) ** 0.4
 
 TWO_PI = 2.0 * math.pi
 DEG = math.pi / 180.0

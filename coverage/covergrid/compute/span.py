@@ -60,6 +60,9 @@ def count_steps(duration_s: float, step_s: float, *, field: str = "step_s") -> i
     if step_s > duration_s:
         raise CovergridError(f"must not exceed the span {duration_s:g} s", field)
     n = duration_s / step_s
+    if not n < 2.0**53:  # beyond exact counting (and beyond any run's reach)
+        raise CovergridError(f"gives {n:.3g} samples over the span {duration_s:g} s; allowed: "
+                             "a step giving fewer than 2**53 samples", field)
     if abs(n - round(n)) > STEP_COUNT_TOLERANCE * n:
         raise CovergridError(
             f"must divide the span {duration_s:g} s into a whole number of steps (it gives "

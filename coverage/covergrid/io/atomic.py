@@ -16,9 +16,9 @@ import tempfile
 from collections.abc import Iterator
 from pathlib import Path
 
-from covergrid.errors import OutputError
+from covergrid.errors import OutputError, OutputRefused
 
-__all__ = ["atomic_path", "check_writable", "explain_os_error", "study_output_dir"]
+__all__ = ["atomic_path", "explain_os_error"]
 
 
 def _current_umask() -> int:
@@ -30,7 +30,12 @@ def _current_umask() -> int:
 _UMASK = _current_umask()
 
 
-def explain_os_error(exc: OSError, path: Path) -> OutputError:
+def explain_os_error(exc: OSError, path: Path, *, refused: bool = False) -> OutputError:
+    """A one-line OutputError naming ``path`` and the cause of an operating-system error.
+
+    ``refused``: the error happened before any work (exit status 2,
+    :class:`~covergrid.errors.OutputRefused`), not while running (exit status 3).
+    """
     why = {
         errno.ENOSPC: "no space left on the device; free some space or choose another --out",
         errno.EDQUOT: "disk quota exceeded; free some space or choose another --out",
@@ -40,67 +45,8 @@ def explain_os_error(exc: OSError, path: Path) -> OutputError:
         errno.ENOTDIR: "a part of the path is a file, not a folder; choose another --out",
         errno.EEXIST: "a file of that name is in the way; choose another --out",
     }.get(exc.errno or -1, f"{exc.strerror or exc}; choose another --out")
-    return OutputError(f"cannot write: {why}", field=str(path))
-
-
-def study_output_dir(out_root: str | os.PathLike, study_name: str) -> Path:
-    """The folder ``out_root/<study_name>/``, refusing any name that would land elsewhere.
-
-    Parameters
-    ----------
-    out_root : path-like
-        The output root (the ``--out`` folder).
-    study_name : str
-        A plain file name (validated by the study model; checked again here).
-
-    Returns
-    -------
-    pathlib.Path
-        The absolute study folder (not created).
-
-    Raises
-    ------
-    OutputError
-        If the name is not a plain file name or resolves outside ``out_root``.
-    """
-    root = Path(out_root).expanduser().resolve()
-    name = str(study_name)
-    if (not name or name in (".", "..") or "/" in name or "\\" in name
-            or any(ord(c) < 32 for c in name)):
-        raise OutputError(f"study name {name!r} is not a plain file name", field="study")
-    target = (root / name).resolve()
-    if target.parent != root:
-        raise OutputError(f"study name {name!r} would write outside {str(root)!r}",
-                          field="study")
-    return target
-
-
-def check_writable(folder: str | os.PathLike) -> None:
-    """Check, before any work, that ``folder`` can be created and written to.
-
-    Creates nothing that stays: the nearest existing ancestor is probed with a temporary
-    file that is removed at once.
-
-    Raises
-    ------
-    OutputError
-        If the folder (or its nearest existing ancestor) is not a writable folder.
-    """
-    path = Path(folder)
-    probe = path
-    while not probe.exists():
-        if probe.parent == probe:
-            break
-        probe = probe.parent
-    if not probe.is_dir():
-        raise OutputError("cannot write: a part of the path is a file, not a folder; "
-                          "choose another --out", field=str(probe))
-    try:
-        fd, name = tempfile.mkstemp(prefix=".covergrid-probe.", dir=probe)
-        os.close(fd)
-        os.unlink(name)
-    except OSError as exc:
-        raise explain_os_error(exc, probe) from None
+    cls = OutputRefused if refused else OutputError
+    return cls(f"cannot write: {why}", field=str(path))
 
 
 def _mkdir(folder: Path) -> None:

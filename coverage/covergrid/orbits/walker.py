@@ -24,16 +24,76 @@ from covergrid.orbits.elements import (
 
 __all__ = [
     "WALKER_PATTERNS",
+    "count_walker_options",
+    "divisors",
     "from_keplerian",
     "from_state_vectors",
     "walker",
     "walker_delta",
     "walker_star",
+    "walker_option_counts",
+    "walker_options",
 ]
 
 # --------------------------------------------------------------------------------------
 # Walker patterns
 # --------------------------------------------------------------------------------------
+
+
+def divisors(n: int) -> list[int]:
+    """Every divisor of ``n`` in increasing order (the plane counts P a total T allows)."""
+    small = [d for d in range(1, int(n**0.5) + 1) if n % d == 0]
+    return small + [n // d for d in reversed(small) if d * d != n]
+
+
+def walker_options(total: int, planes, phasing) -> list[tuple[int, int]]:
+    """Valid (P, F) pairs of a total for ``planes``/``phasing`` given as ``"all"`` or lists.
+
+    Planes that do not divide the total, and phasings not below the planes, are left out
+    (Walker's T/P/F: P divides T, 0 <= F < P).
+    """
+    p_list = divisors(total) if planes == "all" else [p for p in dict.fromkeys(planes)
+                                                      if total % p == 0]
+    out = []
+    for p in p_list:
+        f_list = range(p) if phasing == "all" else [f for f in dict.fromkeys(phasing) if f < p]
+        out += [(p, f) for f in f_list]
+    return out
+
+
+def walker_option_counts(totals, planes, phasing) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct totals and how many (P, F) pairs :func:`walker_options` gives each,
+    counted without listing them.
+
+    Each allowed plane count P adds its number of allowed phasings to every multiple of P
+    (a sieve over 1 .. max T), so the cost is about max T log(max T) additions whatever the
+    count: a search space of billions of patterns is counted in a fraction of a second.
+
+    Returns
+    -------
+    (totals, counts) : tuple of int64 arrays
+        The distinct totals >= 1 in increasing order and the patterns of each.
+    """
+    t = np.unique(np.asarray(list(totals), dtype=np.int64))
+    t = t[t >= 1]
+    if t.size == 0:
+        return t, np.zeros(0, dtype=np.int64)
+    t_max = int(t[-1])
+    per_total = np.zeros(t_max + 1, dtype=np.int64)
+    candidates = (range(1, t_max + 1) if planes == "all"
+                  else sorted({int(p) for p in planes if 1 <= int(p) <= t_max}))
+    f_sorted = None if phasing == "all" else np.unique(np.asarray(list(phasing), dtype=np.int64))
+    for p in candidates:
+        n_f = p if f_sorted is None else int(np.searchsorted(f_sorted, p))  # phasings F < P
+        if n_f:
+            per_total[p::p] += n_f
+    return t, per_total[t]
+
+
+def count_walker_options(totals, planes, phasing) -> int:
+    """How many (T, P, F) patterns :func:`walker_options` gives over the distinct totals
+    (see :func:`walker_option_counts`)."""
+    return int(walker_option_counts(totals, planes, phasing)[1].sum())
 
 
 def _check_tpf(total: int, planes: int, phasing: int) -> int:
@@ -43,9 +103,8 @@ def _check_tpf(total: int, planes: int, phasing: int) -> int:
     if total < 1:
         raise ElementError(f"must be >= 1, got {total}", "total")
     if planes < 1 or total % planes:
-        divisors = [d for d in range(1, total + 1) if total % d == 0]
         raise ElementError(
-            f"must divide total = {total}, got {planes}; allowed: {divisors}", "planes"
+            f"must divide total = {total}, got {planes}; allowed: {divisors(total)}", "planes"
         )
     if not 0 <= phasing < planes:
         raise ElementError(

@@ -11,8 +11,12 @@ output folder, writes every output:
     DIR/<study>/study.resolved.yaml   the study with every default filled in
     DIR/<study>/maps/...              figures (when maps are on)
 
-Nothing is written before the study is valid, the resources suffice and the output folder
-is known to be writable; each file is written atomically (see :mod:`covergrid.io`).
+Nothing is written before the study is valid and the resources suffice. The output folder
+is then taken for the run (its lock, before computing: a second run of the same study into
+the same folder is refused at once) and every file is written into a staging folder that
+replaces ``DIR/<study>/`` whole once all are written (:class:`covergrid.io.ResultFolder`),
+so the folder never holds files of two runs: an interrupted or failed run leaves the
+earlier results as they were, and a run with other maps (or none) leaves no old map.
 """
 
 from __future__ import annotations
@@ -39,6 +43,7 @@ __all__ = [
     "run_study",
     "summarise_study",
     "write_outputs",
+    "write_study_files",
 ]
 
 
@@ -104,19 +109,18 @@ def summarise_study(study: ResolvedStudy, ds) -> dict[str, Any]:
             **out}
 
 
-def write_outputs(study: ResolvedStudy, ds, out_root: str | Path, *, maps: bool = True,
-                  summary: dict | None = None) -> tuple[Path, list[Path], dict]:
-    """Write every output of a computed study into ``out_root/<study>/``.
+def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = True,
+                      summary: dict | None = None) -> tuple[list[Path], dict]:
+    """Write every output file of a computed study into ``folder`` (a staging folder).
 
     Returns
     -------
     tuple
-        (the study folder, the files written, the summary).
+        (the files written, the summary).
     """
     from covergrid import io
     from covergrid.compute.summary import CSV_COLUMNS, summary_rows
 
-    folder = io.study_output_dir(out_root, study.name)
     summary = summarise_study(study, ds) if summary is None else summary
     files = [
         io.write_netcdf(ds, folder / "coverage.nc"),
@@ -128,7 +132,25 @@ def write_outputs(study: ResolvedStudy, ds, out_root: str | Path, *, maps: bool 
         from covergrid.pipeline.figures import write_figures
 
         files += write_figures(study, ds, folder)
-    return folder, files, summary
+    return files, summary
+
+
+def write_outputs(study: ResolvedStudy, ds, out_root: str | Path, *, maps: bool = True,
+                  summary: dict | None = None) -> tuple[Path, list[Path], dict]:
+    """Write every output of a computed study into ``out_root/<study>/``, replacing the
+    folder whole (:class:`covergrid.io.ResultFolder`).
+
+    Returns
+    -------
+    tuple
+        (the study folder, the files written (final paths), the summary).
+    """
+    from covergrid import io
+
+    with io.ResultFolder(out_root, study.name) as folder:
+        files, summary = write_study_files(study, ds, folder.path, maps=maps, summary=summary)
+        files = [folder.final(f) for f in files]
+    return folder.target, files, summary
 
 
 def dataset_attrs(study: ResolvedStudy) -> dict[str, Any]:
@@ -162,32 +184,47 @@ def run_study(study: Study | ResolvedStudy, out_dir: str | Path | None = None, *
     maps : bool
         Draw the figures (when writing outputs).
     force : bool
-        Run even if the memory estimate exceeds the limit.
+        Run even if the memory estimate exceeds the limit (the work limits still hold).
 
     Returns
     -------
     RunResult
+
+    Raises
+    ------
+    StudyError, ResourceError, OutputRefused
+        Before any work: bad input, work or memory over the limits, an output folder that
+        cannot be taken (another run writing it, a link or a file in the way).
+    OutputError
+        While writing (disk full ...): the earlier results are kept.
     """
     from covergrid import io
-    from covergrid.compute.engine import compute_coverage
 
     resolved = resolve_for_run(study, scheduler)
-    if not force:
-        check_resources(resolved)
-    if out_dir is not None:
-        io.check_writable(io.study_output_dir(out_dir, resolved.name))
+    check_resources(resolved, maps=maps and out_dir is not None, force=force)
+    if out_dir is None:
+        ds = _compute(resolved, progress)
+        return RunResult(ds, summarise_study(resolved, ds))
+    with io.ResultFolder(out_dir, resolved.name) as folder:  # taken before computing
+        ds = _compute(resolved, progress)
+        summary = summarise_study(resolved, ds)
+        files, summary = write_study_files(resolved, ds, folder.path, maps=maps,
+                                           summary=summary)
+        files = [folder.final(f) for f in files]
+    return RunResult(ds, summary, folder.target, files)
+
+
+def _compute(resolved: ResolvedStudy, progress: bool):
+    """The coverage Dataset of a resolved study on its scheduler."""
+    from covergrid.compute.engine import compute_coverage
+
     with open_scheduler(resolved.compute) as sched:
-        ds = compute_coverage(
+        return compute_coverage(
             resolved.elements, resolved.epoch, resolved.duration_s, resolved.step_s,
             resolved.grid, resolved.sensor, nfold_max=resolved.nfold_max,
             chunk_rows=resolved.compute.chunk_rows, scheduler=sched, progress=progress,
             attrs=dataset_attrs(resolved), refine_transitions=resolved.refine_transitions,
         )
-    summary = summarise_study(resolved, ds)
-    if out_dir is None:
-        return RunResult(ds, summary)
-    folder, files, summary = write_outputs(resolved, ds, out_dir, maps=maps, summary=summary)
-    return RunResult(ds, summary, folder, files)
 
 
 def run(study: Study | ResolvedStudy | str | Path, out_dir: str | Path | None = None,

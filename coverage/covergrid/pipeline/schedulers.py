@@ -55,7 +55,8 @@ def open_scheduler(compute: ComputeOptions, override: str | None = None) -> Iter
     if name == "local-cluster":
         with LocalCluster(n_workers=compute.workers, threads_per_worker=compute.threads_per_worker,
                           host="127.0.0.1", dashboard_address=None,
-                          processes=True) as cluster, Client(cluster) as client:
+                          processes=True) as cluster, Client(cluster) as client, \
+                _quiet_when_interrupted(client):
             yield client
         return
     try:
@@ -65,5 +66,38 @@ def open_scheduler(compute: ComputeOptions, override: str | None = None) -> Iter
             f"cannot reach the dask scheduler ({exc}); start it "
             "first or check the address (an SSH tunnel or VPN for a remote cluster); got "
             f"{name!r}", field="compute.scheduler") from None
-    with client:
+    with client, _quiet_when_interrupted(None):
         yield client
+
+
+def _silence_logs() -> None:
+    import logging
+
+    for name in ("asyncio", "distributed", "tornado"):
+        logging.getLogger(name).setLevel(logging.CRITICAL)
+
+
+async def _silence_worker_logs() -> None:
+    """_silence_logs in a worker (a coroutine: the client runs it without waiting)."""
+    _silence_logs()
+
+
+@contextlib.contextmanager
+def _quiet_when_interrupted(own_cluster: Any) -> Iterator[None]:
+    """On Ctrl-C or SIGTERM, silence the shutdown chatter of the client and of the workers
+    of our own cluster (``own_cluster``: its client; None for an existing cluster).
+
+    Cancelling a distributed computation leaves pending gather tasks whose exceptions the
+    asyncio and distributed loggers print as tracebacks while the client closes, and each
+    worker warns about every task cancelled; the interruption itself is reported in one
+    line by the command, so those loggers are lowered to CRITICAL in the (ending)
+    processes.
+    """
+    try:
+        yield
+    except KeyboardInterrupt:
+        _silence_logs()
+        if own_cluster is not None:
+            with contextlib.suppress(Exception):
+                own_cluster.run(_silence_worker_logs, wait=False)
+        raise

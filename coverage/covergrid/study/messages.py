@@ -44,9 +44,19 @@ class Problems(ValueError):
         super().__init__("; ".join(f"{format_path(p)}: {m}" for p, m, _ in problems))
 
 
-def did_you_mean(word: str, options) -> str:
-    """`` (did you mean 'x'?)`` for the closest option, or an empty string."""
-    close = difflib.get_close_matches(str(word), [str(o) for o in options], n=1, cutoff=0.6)
+#: Longest word compared with the allowed names for a suggestion (a longer one is no typo).
+_SUGGEST_CHARS = 64
+
+
+def did_you_mean(word: Any, options) -> str:
+    """`` (did you mean 'x'?)`` for the closest option, or an empty string.
+
+    Only short text is compared: anything else (a list, a long string) gets no suggestion,
+    so a huge value is never turned into text to look for one.
+    """
+    if not isinstance(word, str) or len(word) > _SUGGEST_CHARS:
+        return ""
+    close = difflib.get_close_matches(word, [str(o) for o in options], n=1, cutoff=0.6)
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
@@ -64,8 +74,15 @@ def format_path(loc) -> str:
         if isinstance(part, int):
             out += f"[{part}]"
         else:
-            out += ("." if out else "") + str(part)
+            text = str(part) if isinstance(part, str) else show_value(part)
+            if len(text) > _PATH_PART_CHARS:  # a huge unknown key is shown cut short
+                text = text[: _PATH_PART_CHARS - 3] + "..."
+            out += ("." if out else "") + text
     return out or "(top level)"
+
+
+#: Longest key shown in a dotted path [characters].
+_PATH_PART_CHARS = 60
 
 
 #: Limits of the value shown in a message: a few items per level, a few levels, so that a
@@ -137,13 +154,13 @@ def _message(root: type[BaseModel], err: Any) -> tuple[list[tuple[tuple, str, An
         op = {"greater_than": ">", "greater_than_equal": ">=", "less_than": "<",
               "less_than_equal": "<="}[kind]
         limit = next(iter(ctx.values()))
-        text = f"out of range; allowed: {op} {limit}"
+        text = f"out of range; allowed: {op} {_bound(limit)}"
         bounds = _field_bounds(root, loc)
         if bounds:
             text = f"out of range; allowed: {bounds}"
         return [(loc, text, value)], True
     if kind == "literal_error":
-        return [(loc, f"not allowed{did_you_mean(str(value), _literal_options(ctx))}; allowed: "
+        return [(loc, f"not allowed{did_you_mean(value, _literal_options(ctx))}; allowed: "
                  f"{ctx.get('expected')}", value)], True
     if kind in ("too_short", "too_long"):
         lo, hi = _length_bounds(root, loc)
@@ -203,12 +220,18 @@ def _field_bounds(root: type[BaseModel], loc: tuple) -> str:
             if getattr(m, attr, None) is not None:
                 hi, hi_op = getattr(m, attr), op
     if lo is not None and hi is not None:
-        return f"{lo} {lo_op} value {hi_op} {hi}"
+        return f"{_bound(lo)} {lo_op} value {hi_op} {_bound(hi)}"
     if lo is not None:
-        return f"value {'>' if lo_op == '<' else '>='} {lo}"
+        return f"value {'>' if lo_op == '<' else '>='} {_bound(lo)}"
     if hi is not None:
-        return f"value {hi_op} {hi}"
+        return f"value {hi_op} {_bound(hi)}"
     return ""
+
+
+def _bound(x: Any) -> str:
+    """A field bound as text (a long float, such as a derived limit, to 10 digits)."""
+    text = str(x)
+    return f"{x:.10g}" if isinstance(x, float) and len(text) > 12 else text
 
 
 def _length_bounds(root: type[BaseModel], loc: tuple) -> tuple[int, int | None]:
@@ -232,9 +255,16 @@ def _problems_text(problems: list[tuple[tuple, str, Any, bool]]) -> StudyError:
         path, _, rest = lines[0].partition(": ")
         err = StudyError(rest, field=path)
     else:
-        err = StudyError(f"{len(lines)} problems in the study:\n  " + "\n  ".join(lines))
+        # One line, every problem numbered (at most _LISTED of them, then how many more).
+        listed = " ".join(f"({n}) {line}" for n, line in enumerate(lines[:_LISTED], 1))
+        more = f" ... and {len(lines) - _LISTED} more" if len(lines) > _LISTED else ""
+        err = StudyError(f"{len(lines)} problems in the study: {listed}{more}")
     err.problems = lines  # type: ignore[attr-defined]
     return err
+
+
+#: Problems listed in one message; the rest are counted.
+_LISTED = 10
 
 
 def study_error_from(exc: ValidationError, root: type[BaseModel]) -> StudyError:

@@ -17,6 +17,7 @@ from pydantic import Field, field_validator, model_validator
 
 from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError
+from covergrid.orbits.walker import count_walker_options
 from covergrid.study.messages import Problems, format_path, reason_of
 from covergrid.study.sections import (
     NAME_RE,
@@ -28,14 +29,25 @@ from covergrid.study.sections import (
     RequirementSection,
     SectionModel,
     SensorSection,
+    orbit_size_problems,
     text_id,
 )
-from covergrid.study.trade_sections import SizingSection, SweepSection
+from covergrid.study.trade_sections import (
+    SIZING_MAX_DESIGNS,
+    SWEEP_MAX_DESIGNS,
+    SizingSection,
+    SweepSection,
+)
 
-__all__ = ["SECONDS_PER_HOUR", "STUDY_NAME_MAX", "Study"]
+__all__ = ["EPOCH_TEXT_MAX", "MIN_STEP_S", "SECONDS_PER_HOUR", "STUDY_NAME_MAX", "Study"]
 
 SECONDS_PER_HOUR = 3600.0
 STUDY_NAME_MAX = 100
+#: Shortest step [s]: a millisecond. Finer sampling means nothing for mean-element orbits
+#: (their along-track error is kilometres, a satellite's travel in about a second).
+MIN_STEP_S = 1e-3
+#: Longest epoch text [characters] (``2031-03-20T00:00:00.123456789+00:00`` has 35).
+EPOCH_TEXT_MAX = 64
 
 
 class Study(SectionModel):
@@ -44,7 +56,7 @@ class Study(SectionModel):
     study: str = Field(description="Study name: a plain file name; the output folder.")
     epoch: str = Field(description="Start time, ISO 8601 UTC (e.g. 2031-03-20T00:00:00Z).")
     duration_h: float = Field(gt=0.0, le=24.0 * 3660, description="Span [h].")
-    step_s: float = Field(gt=0.0, description="Time step [s].")
+    step_s: float = Field(ge=MIN_STEP_S, description="Time step [s] (at least 1 ms).")
     constellation: list[GroupEntry] = Field(min_length=1)
     sensor: SensorSection = Field(default_factory=lambda: SensorSection.model_validate({}))
     grid: GridSection = Field(default_factory=lambda: GridSection.model_validate({}))
@@ -70,9 +82,17 @@ class Study(SectionModel):
         if "/" in value or "\\" in value:
             raise ValueError("must be a plain file name without path separators; allowed: "
                              "letters, digits, '-', '_' and '.'")
-        if value in ("", ".", "..") or ".." in value:
-            raise ValueError("must not be empty or contain '..'; allowed: letters, digits, "
-                             "'-', '_' and '.'")
+        if value in ("", ".", ".."):
+            raise ValueError("must be a name, not empty, '.' or '..'; allowed: letters, "
+                             "digits, '-', '_' and '.'")
+        if value.startswith("."):
+            raise ValueError("must not start with '.' (a hidden name: covergrid keeps its own "
+                             "hidden working folders beside the results); allowed: letters, "
+                             "digits, '-', '_' and '.', starting with a letter, digit, '-' or "
+                             "'_'")
+        if ".." in value:
+            raise ValueError("must not contain '..'; allowed: letters, digits, '-', '_' and "
+                             "'.'")
         if not NAME_RE.match(value) or len(value) > STUDY_NAME_MAX:
             raise ValueError(f"must be a plain file name of at most {STUDY_NAME_MAX} letters, "
                              "digits, '-', '_' and '.'")
@@ -96,6 +116,10 @@ class Study(SectionModel):
     def _epoch(cls, value: str) -> str:
         from covergrid.earth.time import epoch_to_iso, parse_epoch
 
+        if len(value) > EPOCH_TEXT_MAX:
+            raise ValueError(f"is {len(value):,} characters long, not an ISO 8601 time; "
+                             f"allowed: e.g. 2031-03-20T00:00:00Z (at most {EPOCH_TEXT_MAX} "
+                             "characters)")
         try:
             return epoch_to_iso(parse_epoch(value))
         except (ValueError, TypeError, OverflowError) as exc:
@@ -109,6 +133,7 @@ class Study(SectionModel):
             count_steps(self.duration_s, self.step_s)
         except CovergridError as exc:
             problems.append((("step_s",), reason_of(str(exc).partition(": ")[2]), self.step_s))
+        problems += _span_problems(self)
         seen: dict[str, tuple] = {}
         for gi, group in enumerate(self.constellation):
             for si, sat in enumerate(group.satellites or []):
@@ -164,6 +189,23 @@ class Study(SectionModel):
         return yaml.safe_dump(self.resolved_dict(), sort_keys=False, allow_unicode=False)
 
 
+def _span_problems(study: Study) -> list[tuple[tuple, str, Any]]:
+    """The span must end within the supported years (``earth.time.EPOCH_MAX_YEAR``)."""
+    import numpy as np
+
+    from covergrid.earth.time import EPOCH_MAX_YEAR, EPOCH_MIN_YEAR, parse_epoch
+
+    start = parse_epoch(study.epoch)
+    last = np.datetime64(f"{EPOCH_MAX_YEAR + 1}-01-01T00:00:00", "ns")
+    room_s = float((last - start) / np.timedelta64(1, "s"))
+    if study.duration_s > room_s:
+        return [(("duration_h",), f"the span from {study.epoch} would end after "
+                 f"{EPOCH_MAX_YEAR} (supported years: {EPOCH_MIN_YEAR} to {EPOCH_MAX_YEAR}); "
+                 f"allowed: at most {room_s / SECONDS_PER_HOUR:.6g} h from this epoch",
+                 study.duration_h)]
+    return []
+
+
 def _lowest_perigee_altitude_km(group: GroupEntry) -> float:
     """Lowest perigee altitude a(1 - e) - R_E of a group's satellites [km]."""
     if group.template is not None:
@@ -172,15 +214,79 @@ def _lowest_perigee_altitude_km(group: GroupEntry) -> float:
 
 
 def _trade_problems(study: Study) -> list[tuple[tuple, str, Any]]:
-    """Cross-field rules of the sweep and sizing blocks."""
+    """Cross-field rules of the sweep and sizing blocks, their altitudes and their size."""
     problems: list[tuple[tuple, str, Any]] = []
     if study.sizing is not None and study.requirement is None:
         problems.append((("requirement",), "is required with sizing (the search looks for the "
                          "smallest design meeting it)", None))
+    template = next((g.template for g in study.constellation if g.walker is not None), None)
+    e = template.eccentricity if template is not None else 0.0
     if study.sweep is not None:
         group = study.constellation[0]
-        if len(study.constellation) != 1 or group.walker is None:
+        if len(study.constellation) != 1 or group.walker is None or group.template is None:
             problems.append((("sweep",), "needs the constellation to be one Walker group "
                              "(walker + template): the sweep substitutes its values into it",
                              None))
+        else:
+            problems += _altitude_problems("sweep", study.sweep.altitude_km, e)
+            problems += _sweep_size_problems(study.sweep, group)
+    if study.sizing is not None:
+        problems += _altitude_problems("sizing", study.sizing.altitude_km, e)
+        problems += _sizing_size_problems(study.sizing)
     return problems
+
+
+def _altitude_problems(block: str, altitudes, e: float) -> list[tuple[tuple, str, Any]]:
+    """Each altitude of a trade block with the template's eccentricity: perigee above the
+    surface, apogee inside the sphere of influence (the first bad one is reported)."""
+    for i, alt in enumerate(altitudes or []):
+        found = orbit_size_problems(alt, None, e, size_key="altitude_km")
+        if found:
+            (_, text, _), = found
+            where = ("" if e == 0 else
+                     f" (the template's eccentricity {e:g} applies to every altitude)")
+            return [((block, "altitude_km", i), f"{text}{where}", alt)]
+    return []
+
+
+def _sweep_size_problems(sweep: SweepSection, group: GroupEntry) -> list[tuple[tuple, str, Any]]:
+    """The sweep's designs: the product of its axes, at least one and at most the limit."""
+    w = group.walker
+    assert w is not None
+    n_alt = len(set(sweep.altitude_km or [0.0]))
+    n_inc = len(set(sweep.inclination_deg or [0.0]))
+    n_el = len(set(sweep.min_elevation_deg or [0.0]))
+    planes = sweep.planes if sweep.planes is not None else [w.planes]
+    phasing = sweep.phasing if sweep.phasing is not None else [w.phasing]
+    patterns = count_walker_options(sweep.total or [w.total], planes, phasing)
+    n = n_alt * n_inc * n_el * patterns
+    if patterns == 0:
+        return [(("sweep",), f"no combination of total, planes ({_axis_text(planes)}) and "
+                 f"phasing ({_axis_text(phasing)}) is a Walker pattern (planes must divide "
+                 "the total, phasing must be below the planes)", None)]
+    if n > SWEEP_MAX_DESIGNS:
+        return [(("sweep",), f"gives {n:,} designs ({n_alt:,} altitudes x {n_inc:,} "
+                 f"inclinations x {n_el:,} elevations x {patterns:,} Walker patterns); "
+                 f"allowed: at most {SWEEP_MAX_DESIGNS:,} designs in one sweep", None)]
+    return []
+
+
+def _sizing_size_problems(sizing: SizingSection) -> list[tuple[tuple, str, Any]]:
+    """The sizing search's space (every total, planes and phasing it may try at every
+    altitude and inclination) is at most the limit."""
+    cells = len(set(sizing.altitude_km)) * len(set(sizing.inclination_deg))
+    patterns = count_walker_options(range(sizing.total.min, sizing.total.max + 1),
+                                    sizing.planes, sizing.phasing)
+    n = cells * patterns
+    if n > SIZING_MAX_DESIGNS:
+        return [(("sizing", "total", "max"), f"the search may try {n:,} designs ({cells:,} "
+                 f"altitude-inclination pairs x {patterns:,} Walker patterns with totals "
+                 f"{sizing.total.min} to {sizing.total.max}); allowed: at most "
+                 f"{SIZING_MAX_DESIGNS:,}; lower total.max or list planes and phasing",
+                 sizing.total.max)]
+    return []
+
+
+def _axis_text(axis) -> str:
+    return axis if isinstance(axis, str) else ", ".join(str(v) for v in axis[:6]) + (
+        " ..." if len(axis) > 6 else "")

@@ -18,12 +18,16 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from covergrid.compute.grid import grid_shape
-from covergrid.constants import MU_EARTH_KM3_S2, WGS84_A_KM
+from covergrid.constants import EARTH_SOI_RADIUS_KM, MU_EARTH_KM3_S2, WGS84_A_KM
 from covergrid.errors import CovergridError
 from covergrid.study.messages import Problems, did_you_mean
 
 __all__ = [
     "DEFAULT_MAP_METRICS",
+    "MAX_CHUNK_ROWS",
+    "MAX_MEMORY_LIMIT_GB",
+    "MAX_RANGE_KM",
+    "MIN_BAND_WIDTH_DEG",
     "NAME_RE",
     "SCHEDULERS",
     "ComputeSection",
@@ -39,6 +43,7 @@ __all__ = [
     "WalkerSection",
     "check_scheduler",
     "metric_names",
+    "orbit_size_problems",
     "text_id",
 ]
 
@@ -48,6 +53,21 @@ DEFAULT_MAP_METRICS = ("coverage_fraction", "max_gap", "mean_response_time", "me
 _ADDRESS_RE = re.compile(r"^(tcp|tls)://[A-Za-z0-9_.\-\[\]:]+:[0-9]{1,5}$")
 #: A plain name: study names, group names and satellite ids.
 NAME_RE = re.compile(r"^[A-Za-z0-9_.\-]+$")
+#: Longest slant range a sensor may name [km]: no satellite below the sphere of influence
+#: is farther than its radius plus the Earth's from any cell.
+MAX_RANGE_KM = EARTH_SOI_RADIUS_KM + WGS84_A_KM
+#: Largest memory limit a study may give [GB] (a petabyte: beyond any machine).
+MAX_MEMORY_LIMIT_GB = 1.0e6
+#: Most latitude rows per task: the rows of the finest grid (0.05 deg, 3600 rows).
+MAX_CHUNK_ROWS = 3600
+#: Narrowest latitude band of the summary [deg]: the finest grid's cell (0.05 deg); a
+#: narrower band cannot hold a row of cells.
+MIN_BAND_WIDTH_DEG = 0.05
+
+
+def _km(x: float) -> str:
+    """A length for a message [km]: plain below a billion, else in powers of ten."""
+    return f"{x:,.1f}" if abs(x) < 1e9 else f"{x:.3e}"
 
 
 def check_scheduler(value: str) -> str:
@@ -106,7 +126,8 @@ class TemplateSection(SectionModel):
 
     @model_validator(mode="after")
     def _check(self) -> TemplateSection:
-        problems = _size_problems(self.altitude_km, self.semi_major_axis_km, self.eccentricity)
+        problems = orbit_size_problems(self.altitude_km, self.semi_major_axis_km,
+                                       self.eccentricity)
         if problems:
             raise Problems(problems)
         return self
@@ -124,8 +145,14 @@ class TemplateSection(SectionModel):
         return self.a_km * (1.0 - self.eccentricity) - WGS84_A_KM
 
 
-def _size_problems(alt_km, a_km, e) -> list[tuple[tuple, str, Any]]:
-    """Exactly one of altitude/semi-major axis, and the perigee above the surface."""
+def orbit_size_problems(alt_km, a_km, e, *, size_key: str | None = None
+                        ) -> list[tuple[tuple, str, Any]]:
+    """Exactly one of altitude/semi-major axis, the perigee above the surface and the
+    apogee inside the Earth's sphere of influence (``constants.EARTH_SOI_RADIUS_KM``).
+
+    ``size_key`` names the size in the messages when it is not the study key of the
+    value given (a sweep's ``altitude_km[2]``).
+    """
     if (alt_km is None) == (a_km is None):
         both = alt_km is not None
         return [
@@ -137,16 +164,29 @@ def _size_problems(alt_km, a_km, e) -> list[tuple[tuple, str, Any]]:
             )
         ]
     a = a_km if a_km is not None else WGS84_A_KM + alt_km
+    key = size_key or ("semi_major_axis_km" if a_km is not None else "altitude_km")
+    size = a_km if a_km is not None else alt_km
     perigee_alt_km = a * (1.0 - e) - WGS84_A_KM
     if perigee_alt_km <= 0.0:
-        size_key = "semi_major_axis_km" if a_km is not None else "altitude_km"
-        key = "eccentricity" if e > 0 else size_key
+        where = "eccentricity" if e > 0 and size_key is None else key
         return [
             (
-                (key,),
-                f"perigee altitude a(1-e) - R_E = {perigee_alt_km:.1f} km is below the surface "
-                f"(a = {a:.1f} km, e = {e:g}); allowed: a(1-e) > {WGS84_A_KM} km",
-                e if key == "eccentricity" else (a_km if a_km is not None else alt_km),
+                (where,),
+                f"perigee altitude a(1-e) - R_E = {_km(perigee_alt_km)} km is below the "
+                f"surface (a = {_km(a)} km, e = {e:g}); allowed: a(1-e) > {WGS84_A_KM} km",
+                e if where == "eccentricity" else size,
+            )
+        ]
+    apogee_km = a * (1.0 + e)
+    if not apogee_km < EARTH_SOI_RADIUS_KM:
+        where = "eccentricity" if a < EARTH_SOI_RADIUS_KM and size_key is None else key
+        return [
+            (
+                (where,),
+                f"apogee radius a(1+e) = {_km(apogee_km)} km is beyond the Earth's sphere of "
+                f"influence (a = {_km(a)} km, e = {e:g}); allowed: a(1+e) < "
+                f"{EARTH_SOI_RADIUS_KM:,.0f} km",
+                e if where == "eccentricity" else size,
             )
         ]
     return []
@@ -239,8 +279,8 @@ class SatelliteEntry(SectionModel):
                 raise Problems([((missing,), "a state vector needs both position_km and "
                                   "velocity_km_s", None)])
             return self._check_state()
-        problems = _size_problems(self.altitude_km, self.semi_major_axis_km,
-                                  self.eccentricity or 0.0)
+        problems = orbit_size_problems(self.altitude_km, self.semi_major_axis_km,
+                                       self.eccentricity or 0.0)
         if self.inclination_deg is None:
             problems.append((("inclination_deg",), "is required for Keplerian elements "
                              "(0 to 180 deg)", None))
@@ -255,17 +295,26 @@ class SatelliteEntry(SectionModel):
         """Two-body energy and perigee of the state vector (Vallado 5th ed., Algorithm 9)."""
         r_km, v2, energy, a_km, e, h2 = _two_body(self.position_km, self.velocity_km_s)
         if r_km <= WGS84_A_KM:
-            raise Problems([(("position_km",), f"|r| = {r_km:.1f} km is inside the Earth; "
+            raise Problems([(("position_km",), f"|r| = {_km(r_km)} km is inside the Earth; "
                               f"allowed: |r| > {WGS84_A_KM} km", self.position_km)])
+        if not r_km < EARTH_SOI_RADIUS_KM:
+            raise Problems([(("position_km",), f"|r| = {_km(r_km)} km is beyond the Earth's "
+                              f"sphere of influence; allowed: |r| < {EARTH_SOI_RADIUS_KM:,.0f} "
+                              "km", self.position_km)])
         if energy >= 0.0:
-            raise Problems([(("velocity_km_s",), f"|v| = {math.sqrt(v2):.4f} km/s gives an "
+            raise Problems([(("velocity_km_s",), f"|v| = {math.sqrt(v2):.6g} km/s gives an "
                               "unbound orbit (e >= 1); allowed: |v| < escape speed "
-                              f"{math.sqrt(2 * MU_EARTH_KM3_S2 / r_km):.4f} km/s",
+                              f"{math.sqrt(2 * MU_EARTH_KM3_S2 / r_km):.6g} km/s",
                               self.velocity_km_s)])
         if h2 == 0.0 or a_km * (1.0 - e) <= WGS84_A_KM:
             raise Problems([(("velocity_km_s",), f"the orbit's perigee radius "
-                              f"{a_km * (1.0 - e):.1f} km is below the surface; allowed: "
+                              f"{_km(a_km * (1.0 - e))} km is below the surface; allowed: "
                               f"perigee radius > {WGS84_A_KM} km", self.velocity_km_s)])
+        if not a_km * (1.0 + e) < EARTH_SOI_RADIUS_KM:
+            raise Problems([(("velocity_km_s",), f"the orbit's apogee radius "
+                              f"{_km(a_km * (1.0 + e))} km is beyond the Earth's sphere of "
+                              f"influence; allowed: apogee radius < {EARTH_SOI_RADIUS_KM:,.0f} "
+                              "km", self.velocity_km_s)])
         return self
 
     @property
@@ -339,7 +388,8 @@ class SensorSection(SectionModel):
                                      description="Minimum elevation seen from the cell [deg].")
     max_off_nadir_deg: float | None = Field(None, gt=0.0, lt=90.0,
                                             description="Sensor half-cone angle [deg].")
-    max_range_km: float | None = Field(None, gt=0.0, description="Maximum slant range [km].")
+    max_range_km: float | None = Field(None, gt=0.0, le=MAX_RANGE_KM,
+                                       description="Maximum slant range [km].")
 
 
 class GridSection(SectionModel):
@@ -419,8 +469,9 @@ class ComputeSection(SectionModel):
     workers: int | None = Field(None, ge=1, le=1024, description="local-cluster: workers.")
     threads_per_worker: int | None = Field(None, ge=1, le=256,
                                            description="local-cluster: threads per worker.")
-    chunk_rows: int | None = Field(None, ge=1, description="Latitude rows per task.")
-    memory_limit_gb: float | None = Field(None, gt=0.0,
+    chunk_rows: int | None = Field(None, ge=1, le=MAX_CHUNK_ROWS,
+                                   description="Latitude rows per task.")
+    memory_limit_gb: float | None = Field(None, gt=0.0, le=MAX_MEMORY_LIMIT_GB,
                                           description="Refuse studies estimated above this "
                                           "(default: the memory available).")
 
@@ -433,5 +484,5 @@ class ComputeSection(SectionModel):
 class OutputSection(SectionModel):
     """Options for the written outputs."""
 
-    band_width_deg: float = Field(10.0, gt=0.0, le=180.0,
+    band_width_deg: float = Field(10.0, ge=MIN_BAND_WIDTH_DEG, le=180.0,
                                   description="Latitude band width of the summary [deg].")

@@ -12,13 +12,18 @@ from typing import Annotated, Any, Literal
 
 from pydantic import Field, WithJsonSchema, field_validator, model_validator
 
-from covergrid.study.messages import Problems, did_you_mean
+from covergrid.study.messages import Problems, did_you_mean, show_value
 from covergrid.study.sections import Inclination, SectionModel
 
-__all__ = ["SWEEP_MAX_DESIGNS", "CoarseSection", "SizingSection", "SweepSection", "TotalRange"]
+__all__ = ["SIZING_MAX_DESIGNS", "SWEEP_MAX_DESIGNS", "CoarseSection", "SizingSection",
+           "SweepSection", "TotalRange"]
 
-#: Most designs one sweep may list (each is a full coverage run).
+#: Most designs one sweep may hold, the product of its axes (each design is a full
+#: coverage run), and most values one axis may list.
 SWEEP_MAX_DESIGNS = 100000
+#: Most designs a sizing search may try (every allowed total, planes and phasing at every
+#: altitude and inclination: the worst case, when no design meets the requirement).
+SIZING_MAX_DESIGNS = 100000
 
 
 def _axis(value: Any, *, integer: bool) -> Any:
@@ -48,7 +53,8 @@ def _axis(value: Any, *, integer: bool) -> Any:
         extra = [k for k in value if k not in keys]
         missing = sorted(keys - set(value))
         if extra or missing:
-            what = (f"unknown key {extra[0]!r}" if extra else f"missing key {missing[0]!r}")
+            what = (f"unknown key {show_value(extra[0])}" if extra
+                    else f"missing key {missing[0]!r}")
             raise Problems([((), f"a range is {{from, to, step}}; {what}", value)])
         bad: list[tuple[tuple, str, Any]] = [
             ((k,), f"must be a {kind}", value[k]) for k in ("from", "to", "step")
@@ -164,8 +170,8 @@ class CoarseSection(SectionModel):
         None, ge=0.05, le=30.0,
         description="Coarse grid cell size [deg] (default: twice the study's, if it fits).")
     step_s: float | None = Field(
-        None, gt=0.0, description="Coarse time step [s] (default: twice the study's, if it "
-        "divides the span).")
+        None, ge=1e-3, description="Coarse time step [s] (default: twice the study's, if it "
+        "divides the span; at least 1 ms).")
     area_tolerance: float = Field(
         0.02, ge=0.0, le=1.0, description="Share of the area by which a coarse evaluation "
         "may fall short of the requirement and still be confirmed [unitless].")

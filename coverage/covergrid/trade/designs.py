@@ -21,7 +21,7 @@ from covergrid.constants import DEG, WGS84_A_KM
 from covergrid.orbits.element_set import ElementSet
 from covergrid.orbits.walker import walker
 
-__all__ = ["EvalContext", "WalkerDesign", "divisors", "walker_options"]
+__all__ = ["EvalContext", "WalkerDesign"]
 
 
 @dataclass(frozen=True)
@@ -141,22 +141,3 @@ class EvalContext:
     def inputs(self, design: WalkerDesign) -> dict[str, Any]:
         """Every input of a design's row: hashed into its store key."""
         return {"design": asdict(design), "context": asdict(self)}
-
-
-def divisors(n: int) -> list[int]:
-    """Every divisor of ``n`` in increasing order."""
-    return [d for d in range(1, n + 1) if n % d == 0]
-
-
-def walker_options(total: int, planes, phasing) -> list[tuple[int, int]]:
-    """Valid (P, F) pairs of a total for ``planes``/``phasing`` given as ``"all"`` or lists.
-
-    Planes that do not divide the total, and phasings not below the planes, are left out.
-    """
-    p_list = divisors(total) if planes == "all" else [p for p in dict.fromkeys(planes)
-                                                      if total % p == 0]
-    out = []
-    for p in p_list:
-        f_list = range(p) if phasing == "all" else [f for f in dict.fromkeys(phasing) if f < p]
-        out += [(p, f) for f in f_list]
-    return out

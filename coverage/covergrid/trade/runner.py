@@ -3,7 +3,8 @@
 :func:`run_designs` reads the rows already in the store, submits the others (one future per
 design, :func:`covergrid.trade.evaluate.evaluate_design`) to a :class:`DesignRunner` and
 writes each row to the store the moment it finishes, so an interrupted run loses only the
-designs still running.
+designs still running. A stored row that lacks a column or holds a value of the wrong kind
+(a damaged or hand-edited record) is not used: its design is computed again.
 """
 
 from __future__ import annotations
@@ -17,13 +18,13 @@ from typing import TYPE_CHECKING, Any
 
 from covergrid.pipeline.schedulers import open_scheduler
 from covergrid.trade.designs import EvalContext, WalkerDesign
-from covergrid.trade.evaluate import evaluate_design
+from covergrid.trade.evaluate import evaluate_design, row_columns
 from covergrid.trade.store import result_key
 
 if TYPE_CHECKING:
     from covergrid.study.build import ComputeOptions
 
-__all__ = ["DesignRunner", "design_runner", "run_designs"]
+__all__ = ["DesignRunner", "design_runner", "run_designs", "usable_row"]
 
 
 class _Deferred:
@@ -134,13 +135,14 @@ def run_designs(designs: Sequence[WalkerDesign], context: EvalContext, store,
         (rows in the order of ``designs``, each with its ``key``; number computed now).
     """
     keys = [result_key(context.inputs(d)) for d in designs]
+    columns = row_columns(context.nfold_max, context.requirement is not None)
     rows: dict[str, dict] = {}
     todo: dict[str, WalkerDesign] = {}
     for key, d in zip(keys, designs, strict=True):
         if key in rows or key in todo:
             continue
         row = store.get(key)
-        if row is None:
+        if row is None or not usable_row(row, columns):
             todo[key] = d
         else:
             rows[key] = row
@@ -169,6 +171,33 @@ def run_designs(designs: Sequence[WalkerDesign], context: EvalContext, store,
         if bar is not None:
             bar.close()
     return [_restore(rows[k]) for k in keys], len(todo)
+
+
+_TEXT_COLUMNS = frozenset({"key", "pattern", "lost_satellite"})
+_COUNT_COLUMNS = frozenset({"total", "planes", "phasing"})
+
+
+def usable_row(row: dict, columns) -> bool:
+    """Whether a stored row holds every column with a value of the right kind (text, a
+    whole number, true/false or a number/null); a damaged or foreign record is not, and its
+    design is computed again."""
+    for c in columns:
+        if c == "key":
+            continue
+        if c not in row:
+            return False
+        v = row[c]
+        if c in _TEXT_COLUMNS:
+            ok = isinstance(v, str)
+        elif c == "meets":
+            ok = isinstance(v, bool)
+        elif c in _COUNT_COLUMNS:
+            ok = isinstance(v, int) and not isinstance(v, bool)
+        else:
+            ok = v is None or (isinstance(v, int | float) and not isinstance(v, bool))
+        if not ok:
+            return False
+    return True
 
 
 def _restore(row: dict) -> dict:

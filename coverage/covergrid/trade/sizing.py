@@ -60,8 +60,10 @@ from covergrid import __version__, io
 from covergrid.compute.grid import GridSpec
 from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError, StudyError
+from covergrid.orbits.walker import walker_options
+from covergrid.pipeline.resources import check_trade_resources
 from covergrid.study.build import as_resolved
-from covergrid.trade.designs import EvalContext, WalkerDesign, walker_options
+from covergrid.trade.designs import EvalContext, WalkerDesign
 from covergrid.trade.figures import trade_figures
 from covergrid.trade.runner import design_runner, run_designs
 from covergrid.trade.space import designs_caption, evaluation_context
@@ -389,7 +391,7 @@ def _result_row(cell, best: dict | None, tried: int, per_cell: dict, pattern: st
 
 def run_sizing(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = None, *,
                scheduler: str | None = None, progress: bool = False,
-               figures: bool = True) -> SizingResult:
+               figures: bool = True, force: bool = False) -> SizingResult:
     """Run the sizing search and (given ``out_dir``) write its outputs and trade figures.
 
     Parameters
@@ -404,23 +406,35 @@ def run_sizing(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None =
         Progress bars with ETA.
     figures : bool
         Draw the trade figures.
+    force : bool
+        Run even if the memory estimate exceeds the limit.
 
     Returns
     -------
     SizingResult
+
+    Notes
+    -----
+    The output folder is written whole, as by :func:`covergrid.trade.sweep.run_sweep`.
     """
     study = as_resolved(study)
-    store = None
-    folder = None
-    if out_dir is not None:
-        folder = io.study_output_dir(out_dir, study.name)
-        io.check_writable(folder)
-        store = ResultStore(folder / "store")
+    check_trade_resources(study, "sizing", force=force)
     if study.sizing is not None and study.sizing.prune:
         coarse_context(study)  # refuse a bad coarse block before any work
-    res = size_study(study, store, scheduler=scheduler, progress=progress)
-    if folder is None:
-        return res
+    if out_dir is None:
+        return size_study(study, None, scheduler=scheduler, progress=progress)
+    with io.ResultFolder(out_dir, study.name, carry=("store",)) as folder:
+        res = size_study(study, ResultStore(folder.target / "store"), scheduler=scheduler,
+                         progress=progress)
+        files = _write_sizing(study, res, folder.path, figures)
+        files = [folder.final(f) for f in files]
+    res.out_dir, res.files = folder.target, files
+    return res
+
+
+def _write_sizing(study: ResolvedStudy, res: SizingResult, folder: Path,
+                  figures: bool) -> list[Path]:
+    """Write the sizing outputs into ``folder`` (a staging folder)."""
     r = study.requirement
     assert r is not None
     doc = {
@@ -448,5 +462,4 @@ def run_sizing(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None =
                  "worst single satellite)" if robust else ")")
         files += trade_figures(intact, study, folder / "trades" / "sizing",
                                caption=designs_caption(study, shown, what))
-    res.out_dir, res.files = folder, files
-    return res
+    return files

@@ -14,8 +14,9 @@ from typing import TYPE_CHECKING
 from covergrid.compute.grid import GridSpec
 from covergrid.compute.metrics import METRICS
 from covergrid.errors import StudyError
+from covergrid.orbits.walker import walker_options
 from covergrid.study.build import as_resolved
-from covergrid.trade.designs import EvalContext, WalkerDesign, walker_options
+from covergrid.trade.designs import EvalContext, WalkerDesign
 from covergrid.trade.store import software_fingerprint
 
 if TYPE_CHECKING:

@@ -27,6 +27,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from covergrid import io
+from covergrid.pipeline.resources import check_trade_resources
 from covergrid.study.build import as_resolved
 from covergrid.trade.figures import trade_figures
 from covergrid.trade.runner import design_runner, run_designs
@@ -66,7 +67,7 @@ class SweepResult:
 
 def run_sweep(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = None, *,
               scheduler: str | None = None, progress: bool = False,
-              figures: bool = True) -> SweepResult:
+              figures: bool = True, force: bool = False) -> SweepResult:
     """Evaluate every design of the study's sweep block; write the table and figures.
 
     Parameters
@@ -82,29 +83,40 @@ def run_sweep(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = 
         Show a progress bar with ETA.
     figures : bool
         Draw the trade figures.
+    force : bool
+        Run even if the memory estimate exceeds the limit.
 
     Returns
     -------
     SweepResult
+
+    Notes
+    -----
+    The output folder is written whole (:class:`covergrid.io.ResultFolder`): the table,
+    figures and resolved study of one sweep replace the earlier ones at once, while the
+    store's records are written in place as designs finish and carried over.
     """
     study = as_resolved(study)
+    check_trade_resources(study, "sweep", force=force)
     designs = sweep_designs(study)
     context = evaluation_context(study)
-    folder = None
-    if out_dir is not None:
-        folder = io.study_output_dir(out_dir, study.name)
-        io.check_writable(folder)
-        store: Any = ResultStore(folder / "store")
-    else:
-        store = MemoryStore()
-    with design_runner(study.compute, scheduler) as runner:
-        rows, computed = run_designs(designs, context, store, runner, progress=progress,
-                                     desc=f"sweep {study.name}")
-    if folder is None:
+    if out_dir is None:
+        store: Any = MemoryStore()
+        rows, computed = _evaluate(study, designs, context, store, scheduler, progress)
         return SweepResult(rows, computed)
-    files = write_table(rows, study, folder, "sweep")
-    files.append(io.write_text(study.resolved_yaml, folder / "study.resolved.yaml"))
-    if figures:
-        files += trade_figures(rows, study, folder / "trades" / "sweep",
-                               caption=designs_caption(study, designs, "Sweep"))
-    return SweepResult(rows, computed, folder, files)
+    with io.ResultFolder(out_dir, study.name, carry=("store",)) as folder:
+        store = ResultStore(folder.target / "store")
+        rows, computed = _evaluate(study, designs, context, store, scheduler, progress)
+        files = write_table(rows, study, folder.path, "sweep")
+        files.append(io.write_text(study.resolved_yaml, folder.path / "study.resolved.yaml"))
+        if figures:
+            files += trade_figures(rows, study, folder.path / "trades" / "sweep",
+                                   caption=designs_caption(study, designs, "Sweep"))
+        files = [folder.final(f) for f in files]
+    return SweepResult(rows, computed, folder.target, files)
+
+
+def _evaluate(study, designs, context, store, scheduler, progress) -> tuple[list[dict], int]:
+    with design_runner(study.compute, scheduler) as runner:
+        return run_designs(designs, context, store, runner, progress=progress,
+                           desc=f"sweep {study.name}")
