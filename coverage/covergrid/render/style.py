@@ -27,15 +27,20 @@ quantities are plain numbers. The chosen unit is always in the axis or colour-ba
 from __future__ import annotations
 
 import contextlib
+import os
 import textwrap
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
+
+from covergrid.io import save_figure
 
 __all__ = [
     "DPI",
     "FOOTER",
+    "PRINT_DPI",
     "DisplayUnit",
     "add_caption",
     "colormap_for",
@@ -47,10 +52,15 @@ __all__ = [
     "metric_kind",
     "metric_label",
     "report_style",
+    "save_png_and_pdf",
 ]
 
 #: Raster resolution of saved PNG files [dots per inch].
 DPI = 200
+
+#: Resolution of the raster parts of a saved PDF (the cells of a map) [dots per inch]: 300 dpi,
+#: the usual resolution for print (common practice); text and lines stay vector.
+PRINT_DPI = 300
 
 #: Footer carried by every figure.
 FOOTER = "Design study result: secular J2, mean elements; not for operations."
@@ -311,3 +321,36 @@ def add_caption(fig, caption: str | None, *, footer: str = FOOTER, width_chars=N
         fig.text(0.02, 0.105, text, ha="left", va="top", fontsize=_FONT_PT["caption"])
     fig.text(0.02, 0.012, footer, ha="left", va="bottom", fontsize=_FONT_PT["footer"],
              color="0.35", style="italic")
+
+
+def save_png_and_pdf(fig, folder, stem: str) -> list[Path]:
+    """Save one figure as ``folder/<stem>.png`` (:data:`DPI`) and ``folder/<stem>.pdf``.
+
+    The figure is built once and saved twice; each file is written atomically
+    (:func:`covergrid.io.save_figure`) into ``folder`` and nowhere else. In the PDF, artists
+    marked ``rasterized`` (a map's cell mesh) are embedded as an image at :data:`PRINT_DPI`;
+    everything else stays vector.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The drawn figure.
+    folder : path-like
+        Folder to write into (made if missing).
+    stem : str
+        File name without suffix.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The PNG and PDF paths.
+    """
+    import matplotlib as mpl
+
+    folder = Path(os.fspath(folder))
+    png = save_figure(fig, folder / f"{stem}.png", dpi=DPI)
+    # TrueType fonts embedded (not Type 3), so the PDF's text stays text; set here because the
+    # file is written after the drawing code has left report_style()
+    with mpl.rc_context({"pdf.fonttype": 42}):
+        pdf = save_figure(fig, folder / f"{stem}.pdf", dpi=PRINT_DPI)
+    return [png, pdf]

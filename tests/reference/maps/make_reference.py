@@ -23,7 +23,6 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1]))  # tests/, for conftest
 
 from conftest import REFERENCE_MAP_CAPTION, reference_map_dataset  # noqa: E402
-
 from covergrid.render.maps import save_metric_maps  # noqa: E402
 
 
