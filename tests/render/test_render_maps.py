@@ -64,8 +64,8 @@ def _assert_print_pdf(path):
     # for its halo, has about 12,000), far fewer than a vector mesh of a 1 deg grid would add
     # (64,800 cells, 4 edges each).
     assert 2_000 < _pdf_line_segments(data) < 50_000
-    # Text stays text: TrueType fonts are embedded (not Type 3 glyph drawings).
-    assert b"/FontFile2" in data and b"/Subtype /Type3" not in data
+    # Text stays text: embedded fonts with a Unicode map, so it can be selected and searched.
+    assert b"/Type /Font" in data and b"/ToUnicode" in data
     return data
 
 

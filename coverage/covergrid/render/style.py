@@ -87,7 +87,6 @@ def report_style() -> Iterator[None]:
         "legend.fontsize": _FONT_PT["base"] - 1,
         "axes.linewidth": 0.6,
         "lines.linewidth": 1.2,
-        "pdf.fonttype": 42,  # embed TrueType so text in the PDF stays text
         "savefig.dpi": DPI,
     }
     with mpl.rc_context(rc):
@@ -329,7 +328,9 @@ def save_png_and_pdf(fig, folder, stem: str) -> list[Path]:
     The figure is built once and saved twice; each file is written atomically
     (:func:`covergrid.io.save_figure`) into ``folder`` and nowhere else. In the PDF, artists
     marked ``rasterized`` (a map's cell mesh) are embedded as an image at :data:`PRINT_DPI`;
-    everything else stays vector.
+    everything else stays vector. Text is text: matplotlib's Type 3 fonts with a Unicode map,
+    selectable and searchable (embedding TrueType instead, ``pdf.fonttype`` 42, costs about
+    0.15 s a file in font subsetting).
 
     Parameters
     ----------
@@ -345,12 +346,6 @@ def save_png_and_pdf(fig, folder, stem: str) -> list[Path]:
     list of pathlib.Path
         The PNG and PDF paths.
     """
-    import matplotlib as mpl
-
     folder = Path(os.fspath(folder))
-    png = save_figure(fig, folder / f"{stem}.png", dpi=DPI)
-    # TrueType fonts embedded (not Type 3), so the PDF's text stays text; set here because the
-    # file is written after the drawing code has left report_style()
-    with mpl.rc_context({"pdf.fonttype": 42}):
-        pdf = save_figure(fig, folder / f"{stem}.pdf", dpi=PRINT_DPI)
-    return [png, pdf]
+    return [save_figure(fig, folder / f"{stem}.png", dpi=DPI),
+            save_figure(fig, folder / f"{stem}.pdf", dpi=PRINT_DPI)]
