@@ -26,6 +26,7 @@ import numpy as np
 from covergrid.errors import CovergridError
 from covergrid.render import style
 from covergrid.render.coastlines import coastline_geometry
+from covergrid.render.gridlines import gridline_crs
 
 __all__ = [
     "MAP_FIGSIZE_IN",
@@ -158,7 +159,7 @@ def prepare_map_axes(ax, projection_name):
     ax.add_geometries(coast, crs=ccrs.PlateCarree(), facecolor="none", edgecolor="0.1",
                       linewidth=0.45, zorder=3)
     rectangular = projection_name == "plate_carree"
-    gl = ax.gridlines(crs=ccrs.PlateCarree(), draw_labels=True, linewidth=0.3, color="0.4",
+    gl = ax.gridlines(crs=gridline_crs(), draw_labels=True, linewidth=0.3, color="0.4",
                       alpha=0.6, linestyle="--", zorder=4,
                       x_inline=False if rectangular else None,
                       y_inline=False if rectangular else None)
