@@ -80,8 +80,13 @@ def test_how_many_processes_draw(computed, monkeypatch):
     from covergrid.pipeline import resources
 
     monkeypatch.setattr(figures, "_usable_cpus", lambda: 8)
+    monkeypatch.setattr(figures, "_idle_cpus", lambda cpus: cpus - 0.3)
     monkeypatch.setattr(resources, "available_memory_bytes", lambda: 64 * 2**30)
     assert figures.figure_workers(study, jobs) == min(8, len(jobs) // figures.JOBS_PER_PROCESS)
+    # other work keeps 7 of the 8 CPUs busy: only this process draws
+    monkeypatch.setattr(figures, "_idle_cpus", lambda cpus: 1.2)
+    assert figures.figure_workers(study, jobs) == 1
+    monkeypatch.setattr(figures, "_idle_cpus", lambda cpus: cpus - 0.3)
 
     def with_compute(**kw):
         return dataclasses.replace(study, compute=dataclasses.replace(study.compute, **kw))

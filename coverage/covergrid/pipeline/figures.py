@@ -56,11 +56,12 @@ __all__ = [
 #: Samples of the ground-track figure (over one orbit of the slowest satellite, at most the span).
 TRACK_SAMPLES = 721
 
-#: Figures per drawing process at least: a helper starts in about 1 s of one core (a fresh
-#: interpreter importing xarray, matplotlib and cartopy, then its first map), and a map takes
-#: about 0.4 s of a core (PNG and PDF), so a helper with fewer jobs gains nothing (measured
-#: with tests/benchmarks/bench_process.py on the development machine, 2 cores).
-JOBS_PER_PROCESS = 3
+#: Figures per drawing process at least. Every process that draws pays about 1.2 s of one
+#: core once (importing matplotlib and cartopy, then fonts, coastlines and gridlines on its
+#: first map); a helper pays it while this process pays its own, and a map then costs about
+#: 0.4 s of a core (PNG and PDF). A helper with two jobs or more shortens the drawing on a
+#: free core; with one it only spends a core. Measured on the development machine (2 cores).
+JOBS_PER_PROCESS = 2
 
 #: Resident memory of one helper process drawing figures, besides the per-cell term: the
 #: interpreter with numpy, xarray, matplotlib and cartopy imported and a map drawn and saved.
@@ -200,11 +201,20 @@ def _usable_cpus() -> int:
         return os.cpu_count() or 1
 
 
+def _idle_cpus(cpus: int) -> float:
+    """CPUs not busy with other work: the CPU count less the 1-minute load average."""
+    try:
+        return cpus - os.getloadavg()[0]
+    except (AttributeError, OSError):  # no load average on this system
+        return float(cpus)
+
+
 def figure_workers(study: ResolvedStudy, jobs: Sequence[FigureJob]) -> int:
     """How many processes draw the figures: this one plus the helpers (at least 1).
 
-    At most one per :data:`JOBS_PER_PROCESS` jobs (a helper costs about one second of a
-    core to start, two maps' worth) and one per CPU this process may use; at most
+    At most one per :data:`JOBS_PER_PROCESS` jobs, one per CPU this process may use, and
+    one per CPU left idle by other work (the CPU count less the 1-minute load average,
+    rounded: on a busy machine a helper would only take time from this process); at most
     ``compute.workers`` when the study sets it; 1 with ``compute.scheduler: synchronous``;
     and no more helpers than the memory available holds (:data:`HELPER_BASE_BYTES` plus
     :data:`HELPER_BYTES_PER_CELL` per cell each).
@@ -213,7 +223,8 @@ def figure_workers(study: ResolvedStudy, jobs: Sequence[FigureJob]) -> int:
 
     if study.compute.scheduler == "synchronous" or len(jobs) <= 1:
         return 1
-    n = min(len(jobs) // JOBS_PER_PROCESS, _usable_cpus())
+    cpus = _usable_cpus()
+    n = min(len(jobs) // JOBS_PER_PROCESS, cpus, round(_idle_cpus(cpus)))
     if study.compute.workers is not None:
         n = min(n, int(study.compute.workers))
     available = available_memory_bytes()
