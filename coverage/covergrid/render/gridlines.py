@@ -3,7 +3,7 @@
 cartopy's ``Gridliner`` builds its meridians and parallels anew at every draw, so cartopy's
 own cache of projected paths (kept per path object) never finds them, and projecting the 12 to
 20 lines of a world map costs about 0.06 s a draw. A map is drawn twice (PNG, then PDF) and a
-study draws several maps in one projection, so this was about a third of the time of a map.
+study draws several maps in one projection, so this was about a quarter of the time of a map.
 
 :func:`gridline_crs` is plate carree whose Matplotlib transform remembers the projected paths
 by their vertices (:data:`PROJECTED_PATHS_KEPT` of them), so a line is projected once per
