@@ -9,8 +9,10 @@ two slices of the same study (the first steps of the span, the full grid and con
 and extended to the whole span by a straight line through the two (its cost per step is
 constant; the fit removes the fixed part). The ratio of the two is the figure of merit.
 
-Also timed, as processes: the same run without figures (``--no-maps``), ``covergrid check``,
-and W2 (studies/w2_1200.yaml: 1200/40/1 at 53 deg, 600 km, 25 deg, 1 deg grid, 24 h at 30 s)
+Also timed, as processes: the same run without figures (``--no-maps``); its figures alone,
+drawn from its coverage.nc by one process and by two (``draw_figures(workers=...)``, so the
+gain of a helper shows whatever the machine's load); ``covergrid check``; and W2
+(studies/w2_1200.yaml: 1200/40/1 at 53 deg, 600 km, 25 deg, 1 deg grid, 24 h at 30 s) as a
 whole process. Each process is run several times; the best wall time is reported with the
 median, and the CPU time (user + system, helpers included) of the best run, so a reader can
 tell a slow run from a busy machine; the load average before and after is reported too.
@@ -62,6 +64,21 @@ def _process(argv: list[str], repeat: int, cwd: Path) -> dict:
     return {"wall_s": walls[best], "median_s": statistics.median(walls), "cpu_s": cpus[best]}
 
 
+# Draws the figures of a computed study from its coverage.nc in a fresh process, with a given
+# number of drawing processes (this one included).
+_DRAW_FIGURES = """
+import sys
+import xarray as xr
+from covergrid.pipeline.figures import draw_figures, figure_jobs
+from covergrid.study import load_study
+from covergrid.study.build import resolve
+study = resolve(load_study(sys.argv[1]))
+with xr.open_dataset(sys.argv[2]) as ds:
+    jobs = figure_jobs(study, ds.load())
+draw_figures(jobs, sys.argv[3], workers=int(sys.argv[4]))
+"""
+
+
 def brute_force_s(study_path: Path) -> dict:
     """The numpy brute force's cost for the whole study, from two measured slices [s]."""
     import numpy as np
@@ -99,6 +116,10 @@ def run(repeat: int = 3) -> dict:
         check = _process([covergrid, "check", str(STUDY)], max(repeat, 5), cwd)
         w2 = _process([covergrid, "run", str(W2_STUDY), "--out", out, "--quiet"],
                       max(1, repeat - 1), cwd)
+        # the figures alone, drawn by one process and by two (whatever the machine's load)
+        nc = str(cwd / "out" / "bench_global_48" / "coverage.nc")
+        drawn = {n: _process([sys.executable, "-c", _DRAW_FIGURES, str(STUDY), nc,
+                              str(cwd / f"figures{n}"), str(n)], repeat, cwd) for n in (1, 2)}
     brute = brute_force_s(STUDY)
     return {
         "bench": "whole process",
@@ -106,6 +127,9 @@ def run(repeat: int = 3) -> dict:
         "run_s": whole["wall_s"], "run_median_s": whole["median_s"], "run_cpu_s": whole["cpu_s"],
         "run_no_maps_s": no_maps["wall_s"], "run_no_maps_cpu_s": no_maps["cpu_s"],
         "figures_share": 1.0 - no_maps["wall_s"] / whole["wall_s"],
+        "figures_1_process_s": drawn[1]["wall_s"], "figures_1_process_cpu_s": drawn[1]["cpu_s"],
+        "figures_2_processes_s": drawn[2]["wall_s"],
+        "figures_2_processes_cpu_s": drawn[2]["cpu_s"],
         **brute,
         "speedup_whole_process": brute["brute_force_s"] / whole["wall_s"],
         "target_speedup": ">= 200x",

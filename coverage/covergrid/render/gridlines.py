@@ -9,15 +9,20 @@ study draws several maps in one projection, so this was about a quarter of the t
 by their vertices (:data:`PROJECTED_PATHS_KEPT` of them), so a line is projected once per
 process and projection. The remembered paths are the ones cartopy computes, so the maps look
 exactly the same (tests/render/test_render_reference.py).
+
+:func:`place_labels_once` keeps a figure's gridline labels where they were first placed while
+it is saved: cartopy places them again at every draw and once more to put the title above
+them, four times for a map saved as PNG and PDF: about a sixth of the time of a map.
 """
 
 from __future__ import annotations
 
 import collections
 import functools
+import sys
 from typing import Any
 
-__all__ = ["PROJECTED_PATHS_KEPT", "gridline_crs"]
+__all__ = ["PROJECTED_PATHS_KEPT", "gridline_crs", "place_labels_once"]
 
 #: Projected gridlines remembered (a world map has 12 to 20; a few projections per process).
 PROJECTED_PATHS_KEPT = 512
@@ -63,3 +68,29 @@ def gridline_crs():
             return RememberedTransform(self, axes.projection) + axes.transData
 
     return RememberedPlateCarree()
+
+
+def place_labels_once(fig) -> None:
+    """Keep the gridline labels of a figure where its next draw places them, for good.
+
+    For a figure whose layout is final, such as one being saved to files: the labels depend
+    only on the axes, the projection and the text sizes, so placing them at every draw
+    repeats the same work (the PNG and PDF differ only in resolution; their labels agree to
+    a micrometre of map coordinates). Uses cartopy's ``Gridliner`` switch ``auto_update``,
+    whose keyword argument is deprecated since cartopy 0.23, so the switch is set directly;
+    if a later cartopy drops it, the labels are placed at every draw again (slower, the same
+    figure).
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        A figure about to be saved; figures without map axes are left as they are.
+    """
+    if "cartopy" not in sys.modules:  # no map axes can exist; do not import cartopy for none
+        return
+    from cartopy.mpl.gridliner import Gridliner
+
+    for ax in fig.axes:
+        for artist in ax.artists:
+            if isinstance(artist, Gridliner):
+                artist._auto_update = False

@@ -346,6 +346,9 @@ def save_png_and_pdf(fig, folder, stem: str) -> list[Path]:
     list of pathlib.Path
         The PNG and PDF paths.
     """
+    from covergrid.render.gridlines import place_labels_once
+
     folder = Path(os.fspath(folder))
+    place_labels_once(fig)  # the layout is final: map labels placed once, not per draw
     return [save_figure(fig, folder / f"{stem}.png", dpi=DPI),
             save_figure(fig, folder / f"{stem}.pdf", dpi=PRINT_DPI)]
