@@ -4,10 +4,15 @@ PYTHON ?= python3
 VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
+# numba's on-disk cache of the compiled kernel and propagator, warmed after installing and
+# again whenever a module that may hold compiled code changes (numba recompiles a function
+# whose file changed; when nothing did, warming takes about a second), so no run compiles
+WARM   := $(VENV)/.numba-warm
+JITTED := $(wildcard coverage/covergrid/compute/*.py coverage/covergrid/orbits/*.py)
 
 .PHONY: venv test test-fast bench demo lint schema clean
 
-venv: $(STAMP)
+venv: $(WARM)
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
@@ -15,18 +20,22 @@ $(STAMP): pyproject.toml
 	$(PY) -m pip install --quiet -e '.[dev]'
 	touch $(STAMP)
 
+$(WARM): $(STAMP) $(JITTED)
+	$(PY) -m covergrid.pipeline.warmup
+	touch $(WARM)
+
 # the pytest entry point, not `python -m pytest`: the latter puts the repository root on
 # sys.path (see DEVELOPERS.md)
-test: $(STAMP)
+test: $(WARM)
 	$(VENV)/bin/pytest -q
 
-test-fast: $(STAMP)
+test-fast: $(WARM)
 	$(VENV)/bin/pytest -q -m 'not slow'
 
-bench: $(STAMP)
+bench: $(WARM)
 	$(PY) tests/benchmarks/run_all.py
 
-demo: $(STAMP)
+demo: $(WARM)
 	$(VENV)/bin/covergrid run configs/demo.yaml --out outputs
 
 schema: $(STAMP)

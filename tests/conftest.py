@@ -201,6 +201,23 @@ def analytic_dataset(resolution_deg: float = 10.0, lat_min_deg: float = -90.0,
     return xr.Dataset(data_vars, coords, attrs={"Conventions": "CF-1.8"})
 
 
+#: Caption of the reference map (tests/reference/maps/README.md); an invented design.
+REFERENCE_MAP_CAPTION = ("Walker delta 48/8/1, altitude 1000 km, inclination 60\u00b0. Sensor: "
+                         "minimum elevation 15\u00b0. Span 24 h from 2027-01-01T00:00:00Z, "
+                         "step 30 s.")
+
+
+def reference_map_dataset() -> xr.Dataset:
+    """The Dataset of the reference map: :func:`analytic_dataset` on a 1 deg grid, with
+    ``max_gap`` NaN poleward of 75 deg (so the map shows transparent cells too).
+
+    64,800 cells, the size of a typical global study; the values are figure inputs only.
+    """
+    ds = analytic_dataset(1.0)
+    ds["max_gap"] = ds["max_gap"].where(np.abs(ds["lat"]) < 75.0)
+    return ds
+
+
 # --- the brute-force reference ---------------------------------------------------------------
 def cell_centres(resolution_deg, lat_min_deg=-90.0, lat_max_deg=90.0):
     """Geodetic centres of a regular grid, (n_lat, n_lon) each [rad]."""

@@ -1,7 +1,9 @@
 """Run every benchmark, each in its own process (so peak memory is per benchmark), and print
 one table. Figures also go to outputs/bench/results.json. Used by `make bench`.
 
-    python tests/benchmarks/run_all.py [name ...]     names: propagation w1 w2 w3 cluster sweep
+    python tests/benchmarks/run_all.py [name ...]
+
+names: propagation w1 w2 w3 process cluster sweep (default: all).
 """
 
 from __future__ import annotations
@@ -25,6 +27,7 @@ BENCHES = {
     "cluster": [sys.executable, "-c",
                 f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
                 "import bench_cluster as b; print(json.dumps(b.run()))"],
+    "process": [sys.executable, str(HERE / "bench_process.py")],
     "sweep": [sys.executable, "-c",
               f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
               "import bench_sweep as b; print(json.dumps(b.run()))"],

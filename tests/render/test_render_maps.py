@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+import zlib
 
 import matplotlib.pyplot as plt
 import numpy as np
@@ -36,37 +37,55 @@ def _pdf_images(data: bytes) -> list[tuple[int, int]]:
             re.findall(rb"/Subtype /Image\s*/Width (\d+)\s*/Height (\d+)", data)]
 
 
-def _assert_vector_pdf(path):
+def _pdf_line_segments(data: bytes) -> int:
+    """Number of straight-line path segments (``l`` operators) in a PDF's content streams."""
+    count = 0
+    for match in re.finditer(rb"stream\r?\n(.*?)\r?\nendstream", data, re.S):
+        try:
+            content = zlib.decompress(match.group(1))
+        except zlib.error:  # an image or font stream, not drawing operators
+            continue
+        count += len(re.findall(rb"[\d.]+ [\d.]+ l\n", content))
+    return count
+
+
+def _assert_print_pdf(path):
+    """The PDF of a map: the cell mesh one image at print resolution, the rest vector."""
     data = path.read_bytes()
     assert data.startswith(b"%PDF-")
-    assert b"/Subtype /Image" not in data  # cells, colour bar, coast and text are all vector
+    images = _pdf_images(data)
+    # One image of the cells, plus its soft mask (the alpha of the NaN cells) of the same size.
+    assert 1 <= len(images) <= 2 and len(set(images)) == 1
+    width_px, height_px = images[0]
+    map_width_in = 0.80 * maps.MAP_FIGSIZE_IN[0]  # the map axes of a new figure
+    assert width_px >= 0.95 * map_width_in * style.PRINT_DPI  # 300 dpi, not the PNG's 200
+    assert height_px > 0.3 * width_px
+    # Coastlines and gridlines stay vector: thousands of segments (the 110m coast, drawn twice
+    # for its halo, has about 12,000), far fewer than a vector mesh of a 1 deg grid would add
+    # (64,800 cells, 4 edges each).
+    assert 2_000 < _pdf_line_segments(data) < 50_000
+    # Text stays text: embedded fonts with a Unicode map, so it can be selected and searched.
+    assert b"/Type /Font" in data and b"/ToUnicode" in data
     return data
 
 
-def test_save_maps_png_and_vector_pdf(dataset, tmp_path, offline_and_tidy):
+def test_save_maps_png_and_print_pdf(dataset, tmp_path, offline_and_tidy):
     written = maps.save_metric_maps(dataset, ["max_gap"], tmp_path,
                                     caption="Walker delta 6/3/1 test design.")
     names = [p.name for p in written]
     assert names == ["max_gap.png", "max_gap.pdf"]
     assert all(p.parent == tmp_path / "maps" for p in written)
-    for path in written:
-        if path.suffix == ".png":
-            _assert_report_png(path, EXPECTED_PX)
-        else:
-            _assert_vector_pdf(path)
+    _assert_report_png(written[0], EXPECTED_PX)
+    _assert_print_pdf(written[1])
     assert sorted(p.name for p in (tmp_path / "maps").iterdir()) == sorted(names)  # no temp left
     assert list(offline_and_tidy.iterdir()) == []  # nothing downloaded into cartopy's folder
 
 
-def test_fine_grid_rasterises_only_the_mesh(tmp_path, monkeypatch):
-    monkeypatch.setattr(maps, "VECTOR_CELL_LIMIT", 100)
-    written = maps.save_metric_maps(analytic_dataset(10.0), ["coverage_fraction"], tmp_path,
-                                    caption=None)
-    data = written[1].read_bytes()
-    images = _pdf_images(data)
-    assert len(images) == data.count(b"/Subtype /Image") >= 1
-    # The mesh image covers the map: at 200 dpi it is hundreds of pixels on each side.
-    assert max(w for w, _ in images) > 500 and max(h for _, h in images) > 200
+def test_fine_grid_pdf_is_small_with_the_mesh_as_one_image(tmp_path):
+    ds = analytic_dataset(1.0)  # 64,800 cells: as vector paths the PDF was about 1.5 MB
+    written = maps.save_metric_maps(ds, ["coverage_fraction"], tmp_path, caption=None)
+    _assert_print_pdf(written[1])
+    assert written[1].stat().st_size < 600_000
 
 
 def test_nfold_one_map_per_fold_or_chosen_fold(dataset, tmp_path):

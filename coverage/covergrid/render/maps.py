@@ -7,9 +7,11 @@ standard footer. Colours and units follow :mod:`covergrid.render.style`. Cells h
 (for example outside the computed latitude band) are left transparent.
 
 Saved maps (:func:`save_metric_maps`) are ``maps/<metric>.png`` at 200 dpi and
-``maps/<metric>.pdf`` with the cells, coastlines and text as vector graphics (grids finer than
-:data:`VECTOR_CELL_LIMIT` cells have only the cell mesh rasterised inside the PDF, to keep files
-small). ``nfold_fraction`` is drawn once per fold ``k``: ``maps/nfold_fraction_k<k>.png``.
+``maps/<metric>.pdf``, both from one figure. In the PDF the text, coastlines, gridlines, colour
+bar and map outline are vector graphics and the cell mesh alone is one embedded image at
+:data:`covergrid.render.style.PRINT_DPI` (300 dpi): a 1 deg grid is 64,800 cells, and as vector
+paths they made the PDF slow to write (about 2 s a map) and to open, for no visible gain at print
+size. ``nfold_fraction`` is drawn once per fold ``k``: ``maps/nfold_fraction_k<k>.png``.
 """
 
 from __future__ import annotations
@@ -22,14 +24,13 @@ from pathlib import Path
 import numpy as np
 
 from covergrid.errors import CovergridError
-from covergrid.io import save_figure
 from covergrid.render import style
 from covergrid.render.coastlines import coastline_geometry
+from covergrid.render.gridlines import gridline_crs
 
 __all__ = [
     "MAP_FIGSIZE_IN",
     "PROJECTIONS",
-    "VECTOR_CELL_LIMIT",
     "design_caption",
     "get_projection",
     "plot_metric_map",
@@ -38,9 +39,6 @@ __all__ = [
 
 #: Size of a saved map figure [in]; at 200 dpi a PNG is 1700 x 1000 pixels.
 MAP_FIGSIZE_IN = (8.5, 5.0)
-
-#: Grids with more cells than this are rasterised (mesh only) inside the PDF.
-VECTOR_CELL_LIMIT = 200_000
 
 # Latitude where the polar views stop [deg]: the pole down to 20 deg keeps polar detail legible.
 _POLAR_EDGE_LAT_DEG = 20.0
@@ -161,7 +159,7 @@ def prepare_map_axes(ax, projection_name):
     ax.add_geometries(coast, crs=ccrs.PlateCarree(), facecolor="none", edgecolor="0.1",
                       linewidth=0.45, zorder=3)
     rectangular = projection_name == "plate_carree"
-    gl = ax.gridlines(crs=ccrs.PlateCarree(), draw_labels=True, linewidth=0.3, color="0.4",
+    gl = ax.gridlines(crs=gridline_crs(), draw_labels=True, linewidth=0.3, color="0.4",
                       alpha=0.6, linestyle="--", zorder=4,
                       x_inline=False if rectangular else None,
                       y_inline=False if rectangular else None)
@@ -263,8 +261,7 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
         norm, ticks, extend = _norm_for(metric, units, shown)
         mesh = ax.pcolormesh(lon_edges, lat_edges, shown, transform=ccrs.PlateCarree(),
                              cmap=colormap, norm=norm, shading="flat", edgecolors="face",
-                             linewidth=0, zorder=1,
-                             rasterized=values.size > VECTOR_CELL_LIMIT)
+                             linewidth=0, zorder=1, rasterized=True)
         if own_figure:
             # Put the colour bar beside the map as drawn (narrow projections leave room).
             ax.apply_aspect()
@@ -393,8 +390,7 @@ def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None
                                k=fold)
         fig = mesh.axes.figure
         try:
-            for suffix in (".png", ".pdf"):
-                written.append(save_figure(fig, maps_dir / f"{stem}{suffix}", dpi=style.DPI))
+            written += style.save_png_and_pdf(fig, maps_dir, stem)
         finally:
             plt.close(fig)
     return written

@@ -6,14 +6,12 @@ One panel per metric, latitude on the vertical axis (as on a map), the metric in
 
 from __future__ import annotations
 
-import os
 from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
 
 from covergrid.errors import CovergridError
-from covergrid.io import save_figure
 from covergrid.render import style
 
 __all__ = [
@@ -176,7 +174,6 @@ def save_latitude_profile(ds, metrics: Sequence[str], out_dir, *,
     axes = plot_latitude_profile(ds, metrics, caption=caption, **kwargs)
     fig = axes[0].figure
     try:
-        return [save_figure(fig, Path(os.fspath(out_dir)) / f"{stem}{suffix}", dpi=style.DPI)
-                for suffix in (".png", ".pdf")]
+        return style.save_png_and_pdf(fig, out_dir, stem)
     finally:
         plt.close(fig)

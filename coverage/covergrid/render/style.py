@@ -27,15 +27,20 @@ quantities are plain numbers. The chosen unit is always in the axis or colour-ba
 from __future__ import annotations
 
 import contextlib
+import os
 import textwrap
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
+
+from covergrid.io import save_figure
 
 __all__ = [
     "DPI",
     "FOOTER",
+    "PRINT_DPI",
     "DisplayUnit",
     "add_caption",
     "colormap_for",
@@ -47,10 +52,15 @@ __all__ = [
     "metric_kind",
     "metric_label",
     "report_style",
+    "save_png_and_pdf",
 ]
 
 #: Raster resolution of saved PNG files [dots per inch].
 DPI = 200
+
+#: Resolution of the raster parts of a saved PDF (the cells of a map) [dots per inch]: 300 dpi,
+#: the usual resolution for print (common practice); text and lines stay vector.
+PRINT_DPI = 300
 
 #: Footer carried by every figure.
 FOOTER = "Design study result: secular J2, mean elements; not for operations."
@@ -77,7 +87,6 @@ def report_style() -> Iterator[None]:
         "legend.fontsize": _FONT_PT["base"] - 1,
         "axes.linewidth": 0.6,
         "lines.linewidth": 1.2,
-        "pdf.fonttype": 42,  # embed TrueType so text in the PDF stays text
         "savefig.dpi": DPI,
     }
     with mpl.rc_context(rc):
@@ -311,3 +320,35 @@ def add_caption(fig, caption: str | None, *, footer: str = FOOTER, width_chars=N
         fig.text(0.02, 0.105, text, ha="left", va="top", fontsize=_FONT_PT["caption"])
     fig.text(0.02, 0.012, footer, ha="left", va="bottom", fontsize=_FONT_PT["footer"],
              color="0.35", style="italic")
+
+
+def save_png_and_pdf(fig, folder, stem: str) -> list[Path]:
+    """Save one figure as ``folder/<stem>.png`` (:data:`DPI`) and ``folder/<stem>.pdf``.
+
+    The figure is built once and saved twice; each file is written atomically
+    (:func:`covergrid.io.save_figure`) into ``folder`` and nowhere else. In the PDF, artists
+    marked ``rasterized`` (a map's cell mesh) are embedded as an image at :data:`PRINT_DPI`;
+    everything else stays vector. Text is text: matplotlib's Type 3 fonts with a Unicode map,
+    selectable and searchable (embedding TrueType instead, ``pdf.fonttype`` 42, costs about
+    0.15 s a file in font subsetting).
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The drawn figure.
+    folder : path-like
+        Folder to write into (made if missing).
+    stem : str
+        File name without suffix.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The PNG and PDF paths.
+    """
+    from covergrid.render.gridlines import place_labels_once
+
+    folder = Path(os.fspath(folder))
+    place_labels_once(fig)  # the layout is final: map labels placed once, not per draw
+    return [save_figure(fig, folder / f"{stem}.png", dpi=DPI),
+            save_figure(fig, folder / f"{stem}.pdf", dpi=PRINT_DPI)]

@@ -8,14 +8,12 @@ flight is readable.
 
 from __future__ import annotations
 
-import os
 from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
 
 from covergrid.errors import CovergridError
-from covergrid.io import save_figure
 from covergrid.render import style
 from covergrid.render.coastlines import land_geometry
 
@@ -295,7 +293,6 @@ def save_ground_tracks(lat_deg, lon_deg, out_dir, *, stem: str = "ground_tracks"
     lines = plot_ground_tracks(lat_deg, lon_deg, caption=caption, **kwargs)
     fig = lines[0].axes.figure
     try:
-        return [save_figure(fig, Path(os.fspath(out_dir)) / f"{stem}{suffix}", dpi=style.DPI)
-                for suffix in (".png", ".pdf")]
+        return style.save_png_and_pdf(fig, out_dir, stem)
     finally:
         plt.close(fig)

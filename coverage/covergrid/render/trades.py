@@ -38,7 +38,6 @@ from pathlib import Path
 import numpy as np
 
 from covergrid.errors import CovergridError
-from covergrid.io import save_figure
 from covergrid.render import style
 
 __all__ = [
@@ -463,8 +462,7 @@ def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = Non
         try:
             draw(ax)
             style.add_caption(fig, caption)
-            for suffix in (".png", ".pdf"):
-                written.append(save_figure(fig, out / f"{stem}{suffix}", dpi=style.DPI))
+            written += style.save_png_and_pdf(fig, out, stem)
         finally:
             plt.close(fig)
     return written
