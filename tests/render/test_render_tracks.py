@@ -137,3 +137,24 @@ def test_any_plane_numbers_get_one_colour_each():
         assert legend == ["plane 2", "plane 1"]  # numbered by sorted plane value
     finally:
         plt.close(lines[0].axes.figure)
+
+
+def test_plane_numbers_by_sorting_equal_the_pairwise_definition():
+    """Satellites share a plane when RAAN (modulo 2 pi) and inclination agree within the
+    tolerance; planes are numbered in order of their first satellite. The sorting version
+    (memory n, not n^2) gives the numbers of the pairwise comparison it replaced."""
+    from covergrid.orbits.element_set import ElementSet
+    from covergrid.render.tracks import plane_numbers
+
+    rng = np.random.default_rng(7)
+    n = 300
+    raan = rng.choice([0.0, 1.0, 2.0, 2 * np.pi - 1e-9, 3.0], n)  # 2 pi - 1e-9 joins 0
+    inc = rng.choice([0.9, 0.9 + 5e-7, 1.2], n)  # 0.9 + 5e-7 joins 0.9
+    els = ElementSet(a_km=np.full(n, 7000.0), e=np.zeros(n), i_rad=inc, raan_rad=raan,
+                     argp_rad=np.zeros(n), M_rad=rng.uniform(0, 6, n),
+                     ids=tuple(f"s{k}" for k in range(n)))
+    r = np.mod(raan, 2 * np.pi)
+    draan = np.abs(np.angle(np.exp(1j * (r[:, None] - r[None, :]))))
+    same = (draan < 1e-6) & (np.abs(inc[:, None] - inc[None, :]) < 1e-6)
+    _, pairwise = np.unique(np.argmax(same, axis=1), return_inverse=True)
+    np.testing.assert_array_equal(plane_numbers(els), pairwise.reshape(-1))

@@ -37,16 +37,18 @@ import numpy as np
 from covergrid.constants import MU_EARTH_KM3_S2
 
 if TYPE_CHECKING:
-    from covergrid.study.build import ResolvedStudy
+    from covergrid.study.build import ComputeOptions, ResolvedStudy
 
 __all__ = [
     "HELPER_BASE_BYTES",
     "HELPER_BYTES_PER_CELL",
     "JOBS_PER_PROCESS",
+    "MAX_TRACKS",
     "TRACK_SAMPLES",
     "FigureJob",
     "draw_figures",
     "figure_jobs",
+    "figure_processes_at_most",
     "figure_workers",
     "serve_figure_jobs",
     "study_caption",
@@ -55,6 +57,8 @@ __all__ = [
 
 #: Samples of the ground-track figure (over one orbit of the slowest satellite, at most the span).
 TRACK_SAMPLES = 721
+#: Satellites drawn in the ground-track figure at most (spread over the planes).
+MAX_TRACKS = 24
 
 #: Figures per drawing process at least. Every process that draws pays about 1.2 s of one
 #: core once (importing matplotlib and cartopy, then fonts, coastlines and gridlines on its
@@ -148,7 +152,13 @@ def figure_jobs(study: ResolvedStudy, ds) -> list[FigureJob]:
         A ValueError subclass: a metric the Dataset does not hold, or an unknown projection
         (raised before anything is drawn).
     """
-    from covergrid.render import ground_track, plane_numbers, profiles, save_ground_tracks
+    from covergrid.render import (
+        ground_track,
+        plane_numbers,
+        profiles,
+        save_ground_tracks,
+        track_selection,
+    )
     from covergrid.render import maps as render_maps
 
     caption = study_caption(study)
@@ -178,12 +188,18 @@ def figure_jobs(study: ResolvedStudy, ds) -> list[FigureJob]:
                                                    / MU_EARTH_KM3_S2)))
     shown_s = min(period_s, study.duration_s)
     t_s = np.linspace(0.0, shown_s, TRACK_SAMPLES)
-    lat, lon = ground_track(elements, study.epoch, t_s)
+    # only the satellites drawn are propagated (at most MAX_TRACKS, every plane kept)
+    planes = plane_numbers(elements)
+    shown = track_selection(planes, MAX_TRACKS)
+    drawn = elements if shown.size == len(elements) else elements.subset(shown)
+    lat, lon = ground_track(drawn, study.epoch, t_s)
     title = (f"Ground tracks over the first {shown_s / 60:.0f} min"
-             + (" (one orbit)" if shown_s < study.duration_s else ""))
+             + (" (one orbit)" if shown_s < study.duration_s else "")
+             + (f" ({shown.size} of {len(elements)} satellites)"
+                if shown.size < len(elements) else ""))
     jobs.append(FigureJob("ground tracks", save_ground_tracks, (lat, lon),
-                          {"caption": caption, "title": title, "ids": elements.ids,
-                           "planes": plane_numbers(elements)}))
+                          {"caption": caption, "title": title, "ids": drawn.ids,
+                           "planes": planes[shown], "max_sats": MAX_TRACKS}))
 
     profile = [m for m in metrics if m != "nfold_fraction"][:4] or ["coverage_fraction"]
     for metric in profile:
@@ -209,6 +225,18 @@ def _idle_cpus(cpus: int) -> float:
         return float(cpus)
 
 
+def figure_processes_at_most(compute: ComputeOptions, n_jobs: int) -> int:
+    """The most processes that may draw ``n_jobs`` figures (this one included): one per
+    :data:`JOBS_PER_PROCESS` jobs, per usable CPU and at most ``compute.workers``; 1 with
+    ``compute.scheduler: synchronous``. The memory estimate counts this many."""
+    if compute.scheduler == "synchronous" or n_jobs <= 1:
+        return 1
+    n = min(n_jobs // JOBS_PER_PROCESS, _usable_cpus())
+    if compute.workers is not None:
+        n = min(n, int(compute.workers))
+    return max(n, 1)
+
+
 def figure_workers(study: ResolvedStudy, jobs: Sequence[FigureJob]) -> int:
     """How many processes draw the figures: this one plus the helpers (at least 1).
 
@@ -221,12 +249,8 @@ def figure_workers(study: ResolvedStudy, jobs: Sequence[FigureJob]) -> int:
     """
     from covergrid.pipeline.resources import available_memory_bytes
 
-    if study.compute.scheduler == "synchronous" or len(jobs) <= 1:
-        return 1
-    cpus = _usable_cpus()
-    n = min(len(jobs) // JOBS_PER_PROCESS, cpus, round(_idle_cpus(cpus)))
-    if study.compute.workers is not None:
-        n = min(n, int(study.compute.workers))
+    n = min(figure_processes_at_most(study.compute, len(jobs)),
+            round(_idle_cpus(_usable_cpus())))
     available = available_memory_bytes()
     if available is not None:
         per_helper = HELPER_BASE_BYTES + HELPER_BYTES_PER_CELL * max(j.cells for j in jobs)

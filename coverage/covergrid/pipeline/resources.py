@@ -33,7 +33,13 @@ from covergrid.constants import MU_EARTH_KM3_S2, WGS84_A_KM
 from covergrid.errors import ResourceError
 from covergrid.orbits.geometry import footprint
 from covergrid.orbits.walker import walker_option_counts
-from covergrid.pipeline.figures import TRACK_SAMPLES
+from covergrid.pipeline.figures import (
+    HELPER_BASE_BYTES,
+    HELPER_BYTES_PER_CELL,
+    MAX_TRACKS,
+    TRACK_SAMPLES,
+    figure_processes_at_most,
+)
 from covergrid.study.build import as_resolved
 
 if TYPE_CHECKING:
@@ -104,13 +110,12 @@ WORKER_PROCESS_BYTES = 256 * 2**20
 #: 2-worker cluster on a 0.1 deg grid peaked 1.0 GB above threads: 2 x 230 MB + 0.8 of
 #: the 0.69 GB Dataset).
 _WORKER_RESULT_COPIES = 1.0
-#: Ground-track figure: bytes per satellite and track sample (propagated positions and
-#: sub-satellite points: measured 161) and per satellite pair (plane numbering compares
-#: every pair: measured 32), with the current render code (render/tracks.py).
+#: Ground-track figure: bytes per drawn satellite and track sample (propagated positions and
+#: sub-satellite points: measured 161; at most pipeline.figures.MAX_TRACKS satellites are
+#: drawn and propagated), and per satellite for numbering the planes (a few sorted int64 and
+#: float64 arrays: render/tracks.plane_numbers sorts, it no longer compares every pair).
 TRACK_BYTES_PER_SAMPLE = 176
-PLANE_PAIR_BYTES = 32
-#: Metric maps: bytes per cell while a map is drawn (measured 19-57 at 0.5-0.1 deg).
-MAP_BYTES_PER_CELL = 64
+PLANE_BYTES_PER_SATELLITE = 128
 #: A design row kept in memory: bytes per value (Python floats in a dict read back from
 #: JSON: measured 136).
 ROW_VALUE_BYTES = 150
@@ -202,10 +207,15 @@ def _band_share(study: ResolvedStudy) -> float:
     return 0.5 * (math.sin(math.radians(g.lat_max_deg)) - math.sin(math.radians(g.lat_min_deg)))
 
 
-def _figures_bytes(n_sat: int, cells: int) -> int:
-    """Peak memory the figures add: ground tracks, plane numbering and one map at a time."""
-    return (n_sat * TRACK_SAMPLES * TRACK_BYTES_PER_SAMPLE + n_sat * n_sat * PLANE_PAIR_BYTES
-            + cells * MAP_BYTES_PER_CELL)
+def _figures_bytes(study: ResolvedStudy, n_sat: int, cells: int) -> int:
+    """Peak memory the figures add: ground tracks, plane numbering, one map at a time in this
+    process, and every helper process that may draw (pipeline.figures: each holds its
+    interpreter and libraries, HELPER_BASE_BYTES, and HELPER_BYTES_PER_CELL a cell; the same
+    per-cell figure holds for this process)."""
+    processes = figure_processes_at_most(study.compute, _map_count(study) + 2)
+    return (min(n_sat, MAX_TRACKS) * TRACK_SAMPLES * TRACK_BYTES_PER_SAMPLE
+            + n_sat * PLANE_BYTES_PER_SATELLITE + cells * HELPER_BYTES_PER_CELL
+            + (processes - 1) * (HELPER_BASE_BYTES + cells * HELPER_BYTES_PER_CELL))
 
 
 def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
@@ -283,7 +293,7 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
         "tasks": running * per_task,
         "workers": processes * WORKER_PROCESS_BYTES
                    + (int(_WORKER_RESULT_COPIES * out_bytes) if processes else 0),
-        "figures": _figures_bytes(n_sat, cells) if maps else 0,
+        "figures": _figures_bytes(study, n_sat, cells) if maps else 0,
     }
     memory = sum(parts.values())
     row_samples = float(np.sum(_footprint_rows(elements.a_km, study.sensor, study))) * n_steps
@@ -359,7 +369,9 @@ def _check_memory(study: ResolvedStudy, est: dict[str, Any], what: str, force: b
     where = "compute.memory_limit_gb" if given else _dominant_key(parts, rows_key)
     limit_text = (f"compute.memory_limit_gb is {format_bytes(limit)}" if given
                   else f"{format_bytes(limit)} is available")
-    ways = {"figures": "pass --no-maps (the figures of many satellites need the most)",
+    ways = {"figures": "pass --no-maps or use a coarser grid.resolution_deg (drawing the maps "
+                       "of a fine grid needs the most), or set compute.workers: 1 (one process "
+                       "draws)",
             "workers": "use fewer compute.workers or compute.threads_per_worker"}.get(
         _largest(parts), "use a coarser grid.resolution_deg, a smaller compute.chunk_rows or "
                          "a cluster (compute.scheduler)")

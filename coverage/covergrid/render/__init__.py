@@ -26,6 +26,7 @@ from covergrid.render.tracks import (
     plot_ground_tracks,
     save_ground_tracks,
     split_at_antimeridian,
+    track_selection,
 )
 from covergrid.render.trades import (
     pareto_front,
@@ -44,6 +45,7 @@ __all__ = [
     "latitude_profile",
     "pareto_front",
     "plane_numbers",
+    "track_selection",
     "plot_ground_tracks",
     "plot_latitude_profile",
     "plot_metric_map",

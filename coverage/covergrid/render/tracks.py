@@ -24,6 +24,7 @@ __all__ = [
     "plot_ground_tracks",
     "save_ground_tracks",
     "split_at_antimeridian",
+    "track_selection",
 ]
 
 #: Size of a saved ground-track figure [in]; at 200 dpi a PNG is 1700 x 1000 pixels.
@@ -83,12 +84,48 @@ def plane_numbers(elements) -> np.ndarray:
     """
     raan = np.mod(np.asarray(elements.raan_rad, dtype=float), 2 * np.pi)
     inc = np.asarray(elements.i_rad, dtype=float)
-    # Pairwise comparison: n_sat is at most a few thousand, so (n, n) booleans are cheap.
-    draan = np.abs(np.angle(np.exp(1j * (raan[:, None] - raan[None, :]))))
-    same = (draan < _SAME_PLANE_RAD) & (np.abs(inc[:, None] - inc[None, :]) < _SAME_PLANE_RAD)
-    first = np.argmax(same, axis=1)  # index of the first satellite in the same plane
-    _, numbers = np.unique(first, return_inverse=True)
-    return numbers.reshape(-1)
+    n = raan.size
+    if n == 0:
+        return np.zeros(0, dtype=int)
+    # Sort instead of comparing every pair (memory and time n log n, not n^2): cluster the
+    # RAANs where neighbours lie within the tolerance (the last cluster joins the first when
+    # they meet across 2 pi), then the inclinations within each RAAN cluster.
+    order = np.argsort(raan, kind="stable")
+    r = raan[order]
+    raan_cluster = np.concatenate([[0], np.cumsum(np.diff(r) >= _SAME_PLANE_RAD)])
+    if raan_cluster[-1] > 0 and r[0] + 2 * np.pi - r[-1] < _SAME_PLANE_RAD:
+        raan_cluster[raan_cluster == raan_cluster[-1]] = 0
+    by_raan = np.empty(n, dtype=np.int64)
+    by_raan[order] = raan_cluster
+    order = np.lexsort((inc, by_raan))
+    i_sorted, c_sorted = inc[order], by_raan[order]
+    new = np.concatenate([[True], (np.diff(c_sorted) != 0)
+                          | (np.diff(i_sorted) >= _SAME_PLANE_RAD)])
+    plane = np.empty(n, dtype=np.int64)
+    plane[order] = np.cumsum(new) - 1
+    # number the planes in order of their first satellite
+    _, first = np.unique(plane, return_index=True)
+    renumber = np.empty(first.size, dtype=np.int64)
+    renumber[np.argsort(first, kind="stable")] = np.arange(first.size)
+    return renumber[plane]
+
+
+def track_selection(planes, max_sats: int) -> np.ndarray:
+    """Indices of at most ``max_sats`` satellites, taken round-robin across the planes so
+    that every plane stays visible (increasing order)."""
+    groups = np.asarray(planes, dtype=int).reshape(-1)
+    n_sat = groups.size
+    if n_sat <= max_sats:
+        return np.arange(n_sat)
+    order = np.lexsort((np.arange(n_sat), groups))
+    sorted_groups = groups[order]
+    starts = np.concatenate([[0], np.flatnonzero(np.diff(sorted_groups)) + 1])
+    sizes = np.diff(np.concatenate([starts, [n_sat]]))
+    rank = np.empty(n_sat, dtype=int)
+    rank[order] = np.arange(n_sat) - np.repeat(starts, sizes)
+    shown = np.lexsort((groups, rank))[: int(max_sats)]
+    shown.sort()
+    return shown
 
 
 def split_at_antimeridian(lat_deg, lon_deg) -> list[tuple[np.ndarray, np.ndarray]]:
@@ -211,16 +248,7 @@ def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, pl
     if groups.shape != (n_sat,):
         raise CovergridError(f"{groups.size} plane numbers for {n_sat} satellites",
                              field="planes")
-    shown = np.arange(n_sat)
-    if n_sat > max_sats:
-        # Take satellites round-robin across planes so every plane stays visible.
-        order = np.lexsort((np.arange(n_sat), groups))
-        rank = np.empty(n_sat, dtype=int)
-        for g in np.unique(groups):
-            members = order[groups[order] == g]
-            rank[members] = np.arange(members.size)
-        shown = np.lexsort((groups, rank))[: int(max_sats)]
-        shown.sort()
+    shown = track_selection(groups, int(max_sats))
     colours = _group_colours(groups)
     rank_of = {g: n for n, g in enumerate(np.unique(groups))}  # legend numbers 1..n
 
