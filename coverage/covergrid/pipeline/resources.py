@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from covergrid.compute.grid import row_bands
-from covergrid.compute.kernel_state import state_bytes_per_cell
+from covergrid.compute.kernel_state import state_bytes_per_cell, state_bytes_per_satellite_row
 from covergrid.compute.metrics import INTEGER_METRICS, METRICS
 from covergrid.compute.sensor import Sensor
 from covergrid.compute.span import POSITION_BLOCK_BYTES
@@ -146,10 +146,11 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None) -> dic
     bands = row_bands(rows, study.compute.chunk_rows)
     b_rows = max(b - a for a, b in bands)
     out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k)
-    # per running task: the band's streaming state, the position buffer and 4 int32
-    # interval arrays per satellite and row (its finished metrics are counted in out_bytes)
+    # per running task: the band's streaming state, the position buffer and the previous
+    # interval per satellite and row (its finished metrics are counted in out_bytes)
     cell_bytes = state_bytes_per_cell(k)
-    per_task = b_rows * cols * cell_bytes + POSITION_BLOCK_BYTES + 4 * 4 * n_sat * b_rows
+    per_task = (b_rows * cols * cell_bytes + POSITION_BLOCK_BYTES
+                + state_bytes_per_satellite_row() * n_sat * b_rows)
     running = min(workers, len(bands))
     memory = _BASELINE_BYTES + _OUTPUT_COPIES * out_bytes + running * per_task
     available = available_memory_bytes()

@@ -1,0 +1,267 @@
+"""Where a satellite's visibility limits meet one latitude row: the kernel's geometry.
+
+Scalar numba helpers of :mod:`covergrid.compute.kernel`. On a row of constant geodetic
+latitude, a cell at longitude lon is seen from a satellite at Earth-fixed (x, y, z) exactly
+when its *projected coordinate* ``X = x cos(lon) + y sin(lon)`` (the satellite's position
+projected on the cell's meridian direction) reaches a threshold ``X*`` that depends only on
+the satellite and the row: every limit (elevation above the ellipsoid-normal horizon, the
+off-nadir angle of a nadir-pointing cone, the slant range) depends on the cell only through
+``X``, and is met on a half-line ``X >= X*_k``. So the visible cells of a row are
+``cos(lon - lon_sat) >= X*/rho_sat``, one longitude interval, and the visibility margin of a
+cell, ``X - X*`` [km], is a smooth function of time (smooth through the satellite's passage
+over the pole, where its longitude is not): :func:`row_threshold` gives ``X*`` and its time
+derivative in closed form, which the kernel interpolates between samples.
+
+A new limit slots in as one more ``X*_k`` (with its rate) in :func:`row_threshold`, as long
+as it is met on a half-line of ``X``; a limit met on an interval (a side-looking annulus)
+adds an upper threshold and a second interval per row.
+"""
+
+from __future__ import annotations
+
+import math
+
+from covergrid.compute.jit import kernel_function, kernel_helper
+from covergrid.constants import WGS84_A_KM, WGS84_B_KM
+
+__all__ = ["central_angle_bound", "extent", "row_interval", "row_threshold", "visible"]
+
+#: Upper bound on the angle between the ellipsoid normal and the geocentric radius on WGS-84
+#: (the maximum is 0.1924 deg at 45 deg latitude; common practice), with a little margin.
+_VERTICAL_DEFLECTION_BOUND_RAD = math.radians(0.2)
+#: Extra central angle added to the candidate bound to absorb rounding [rad].
+_BOUND_MARGIN_RAD = 1e-6
+#: Threshold returned for "this limit excludes nothing" / "everything" [km]: beyond any
+#: projected coordinate (|X| <= |r_sat| < 1e6 km).
+_NO_LIMIT_KM = -1e9
+_ALL_LIMIT_KM = 1e9
+
+
+@kernel_function
+def central_angle_bound(r_km, el_min_rad, eta_max_rad, range_max_km):
+    """Conservative geocentric central angle of the footprint of a satellite at radius r.
+
+    Spherical footprint geometry (Wertz and Larson, *Space Mission Analysis and Design*,
+    3rd ed., sec. 5.2: sin(eta) = cos(eps) R / r, lambda = 90 deg - eta - eps) evaluated with
+    the polar radius (the smallest Earth radius gives the widest footprint) and the minimum
+    elevation lowered by the largest deflection between ellipsoid normal and geocentric
+    radius, so that no visible cell lies outside it on the ellipsoid. Returns -1 when nothing
+    can be in view.
+    """
+    rb = WGS84_B_KM
+    if r_km <= rb:
+        return -1.0
+    eps = el_min_rad - _VERTICAL_DEFLECTION_BOUND_RAD
+    c = rb * math.cos(eps) / r_km
+    if c > 1.0:
+        c = 1.0
+    lam = math.acos(c) - eps
+    if eta_max_rad > 0.0:
+        s = r_km * math.sin(eta_max_rad) / rb
+        if s < 1.0:
+            lam_on = math.asin(s) - eta_max_rad
+            if lam_on < lam:
+                lam = lam_on
+    if range_max_km > 0.0:
+        # cos(lambda) >= (rho^2 + r^2 - D^2) / (2 rho r) (law of cosines); the bound takes
+        # the smallest right-hand side over rho in [b, a] (stationary at sqrt(r^2 - D^2))
+        d2 = range_max_km * range_max_km
+        best = 2.0
+        for rho in (WGS84_B_KM, WGS84_A_KM, math.sqrt(max(r_km * r_km - d2, 0.0))):
+            rho = min(max(rho, WGS84_B_KM), WGS84_A_KM)
+            v = (rho * rho + r_km * r_km - d2) / (2.0 * rho * r_km)
+            if v < best:
+                best = v
+        if best >= 1.0:
+            return -1.0
+        lam_r = math.acos(max(best, -1.0))
+        if lam_r < lam:
+            lam = lam_r
+    return lam + _BOUND_MARGIN_RAD
+
+
+@kernel_helper
+def _larger_root(a, b, c):
+    """Larger real root of a x^2 + b x + c (a > 0), numerically stable; None-free: a
+    negative discriminant (rounding only, in our use) is taken as zero."""
+    disc = b * b - 4.0 * a * c
+    sq = math.sqrt(disc) if disc > 0.0 else 0.0
+    q = -0.5 * (b + sq) if b >= 0.0 else -0.5 * (b - sq)
+    r1 = q / a
+    if q == 0.0:
+        return r1
+    r2 = c / q
+    return r1 if r1 > r2 else r2
+
+
+@kernel_helper
+def row_threshold(x, y, z, vx, vy, vz, rho, zc, sin_lat, cos_lat, sin_el, cos_eta, range_max,
+                  want_rate):
+    """Threshold X* of the projected coordinate for one row, and its time derivative.
+
+    Parameters are scalars: satellite Earth-fixed position [km] and velocity [km/s]; the
+    row's cell centres at distance ``rho`` from the polar axis and height ``zc`` [km] with
+    geodetic latitude (sin_lat, cos_lat); the limits ``sin_el`` = sin(eps_min) >= 0,
+    ``cos_eta`` = cos(eta_max) (< -1.5: none), ``range_max`` [km] (<= 0: none).
+
+    Returns ``(X*, dX*/dt)`` [km, km/s] (the rate only with ``want_rate``, else 0): a cell of
+    the row at longitude lon is visible iff ``x cos(lon) + y sin(lon) >= X*``.
+
+    Notes
+    -----
+    With the cell at (rho cos lon, rho sin lon, zc) and normal (cos_lat cos lon, cos_lat
+    sin lon, sin_lat), the satellite-to-cell geometry depends on lon only through X:
+    the height of the satellite above the cell's horizon plane is
+    ``P = cos_lat X + sin_lat (z - zc) - rho cos_lat``, the squared range
+    ``D^2 = q - 2 rho X`` with ``q = x^2 + y^2 + rho^2 + (z - zc)^2``, and the projection of
+    the satellite-to-cell vector on the nadir ``N = r^2 - rho X - z zc``. The limits are
+    (elevation) ``P >= sin(eps) D``, (cone) ``N >= cos(eta) |r| D``, (range) ``D <= D_max``;
+    the first two, squared, are quadratics in X whose larger root is the boundary (the
+    cone's near-side intersection; the elevation root with P >= 0), the third is linear.
+    Each boundary's rate follows by implicit differentiation, ``dX*/dt = -F_t / F_X``, of
+    ``F = P - sin(eps) D`` and ``F = N - cos(eta) |r| D``. Geometry of a point seen from a
+    satellite, as in Wertz and Larson, *Space Mission Analysis and Design*, 3rd ed.,
+    sec. 5.2, written on the ellipsoid; the rate is elementary calculus.
+    """
+    dz = z - zc
+    q = x * x + y * y + rho * rho + dz * dz
+    qd = 2.0 * (x * vx + y * vy + dz * vz)
+    b1 = sin_lat * dz - rho * cos_lat
+    s = sin_el
+    if s == 0.0:
+        best = -b1 / cos_lat
+    else:
+        best = _larger_root(cos_lat * cos_lat, 2.0 * (cos_lat * b1 + s * s * rho),
+                            b1 * b1 - s * s * q)
+    rate = 0.0
+    if want_rate:
+        if s == 0.0:
+            rate = -sin_lat * vz / cos_lat
+        else:
+            d = math.sqrt(max(q - 2.0 * rho * best, 1e-12))
+            rate = -(sin_lat * vz - s * qd / (2.0 * d)) / (cos_lat + s * rho / d)
+    if cos_eta > -1.5:
+        r2 = x * x + y * y + z * z
+        e1 = r2 - z * zc
+        k2r2 = cos_eta * cos_eta * r2
+        a = rho * rho
+        b = 2.0 * rho * (k2r2 - e1)
+        c = e1 * e1 - k2r2 * q
+        if b * b - 4.0 * a * c >= 0.0:  # otherwise the cone is wider than the Earth
+            xc = _larger_root(a, b, c)
+            if xc > best:
+                best = xc
+                if want_rate:
+                    rs = math.sqrt(r2)
+                    rv = x * vx + y * vy + z * vz
+                    d = math.sqrt(max(q - 2.0 * rho * xc, 1e-12))
+                    h_t = (2.0 * rv - vz * zc) - cos_eta * (rv / rs * d + rs * qd / (2.0 * d))
+                    rate = -h_t / (-rho + cos_eta * rs * rho / d)
+    if range_max > 0.0:
+        xr = (q - range_max * range_max) / (2.0 * rho)
+        if xr > best:
+            best = xr
+            rate = qd / (2.0 * rho)
+    return best, rate
+
+
+@kernel_helper
+def visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cl, sl, sin2_el, cos2_eta, range2):
+    """Exact visibility of one cell from a satellite at (sx, sy, sz) [km] (scalars only).
+
+    The cell centre is (rho cl, rho sl, zc) on the ellipsoid with normal
+    (cos_lat cl, cos_lat sl, sin_lat). Limits: elevation above the ellipsoid-normal horizon
+    >= eps_min (sin2_el = sin^2 eps_min, eps_min >= 0); off-nadir angle from the geocentric
+    nadir <= eta_max (cos2_eta = cos^2 eta_max, negative when unlimited); slant range
+    <= D_max (range2 = D^2, negative when unlimited).
+    """
+    dx = sx - rho * cl
+    dy = sy - rho * sl
+    dz = sz - zc
+    up = cos_lat * (dx * cl + dy * sl) + sin_lat * dz
+    if up < 0.0:
+        return False
+    d2 = dx * dx + dy * dy + dz * dz
+    if up * up < sin2_el * d2:
+        return False
+    if range2 >= 0.0 and d2 > range2:
+        return False
+    if cos2_eta >= 0.0:
+        nd = sx * dx + sy * dy + sz * dz
+        if nd < 0.0 or nd * nd < cos2_eta * rs2 * d2:
+            return False
+    return True
+
+
+@kernel_helper
+def extent(step, m, cap, jc, sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon, sin_lon,
+           n_lon, sin2_el, cos2_eta, range2, known0):
+    """Largest m in [0, cap] with column jc + step*m visible, searched from the estimate m.
+
+    Visibility falls monotonically with m. With ``known0`` column jc (m = 0) is known to be
+    visible and is not tested; otherwise -1 is returned when it is not visible.
+    """
+    if m < 0:
+        m = 0
+    if m > cap:
+        m = cap
+    j = (jc + step * m) % n_lon
+    if visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j], sin2_el,
+               cos2_eta, range2):
+        while m < cap:
+            j = (jc + step * (m + 1)) % n_lon
+            if not visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
+                           sin2_el, cos2_eta, range2):
+                break
+            m += 1
+        return m
+    m -= 1
+    stop = 0 if known0 else -1
+    while m > stop:
+        j = (jc + step * m) % n_lon
+        if visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j], sin2_el,
+                   cos2_eta, range2):
+            break
+        m -= 1
+    return m
+
+
+@kernel_helper
+def row_interval(sx, sy, sz, rs2, lon_s, w, rho, zc, sin_lat, cos_lat, cos_lon, sin_lon, lon0,
+                 dlon, n_lon, sin2_el, cos2_eta, range2):
+    """Visible columns of one row as (start, length), wrapping modulo n_lon; length 0: none.
+
+    ``w`` is the half-width of the visible longitudes about the satellite's longitude
+    ``lon_s`` from :func:`row_threshold` (acos of X*/rho_sat); the interval's two edges are
+    confirmed with the exact test :func:`visible`, which decides.
+    """
+    jc = int(math.floor((lon_s - lon0) / dlon)) % n_lon
+    off = lon0 + (jc + 0.5) * dlon - lon_s  # centre of jc relative to the satellite
+    cap = (n_lon - 1) // 2
+    # column jc holds the satellite's longitude, so if any column is visible it is; the
+    # right-hand search finds out (without a separate test when the estimate is visible)
+    m_r = extent(1, int(math.floor((w - off) / dlon)), cap, jc, sx, sy, sz, rs2, rho, zc,
+                 sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2, False)
+    if m_r < 0:
+        return 0, 0
+    m_l = extent(-1, int(math.floor((w + off) / dlon)), cap, jc, sx, sy, sz, rs2, rho, zc,
+                 sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2, True)
+    if m_r == cap or m_l == cap:
+        # the footprint reaches round the row: the cells left near the far side are tested
+        # one by one
+        while m_r + m_l + 1 < n_lon:
+            j = (jc + m_r + 1) % n_lon
+            if not visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
+                           sin2_el, cos2_eta, range2):
+                break
+            m_r += 1
+        while m_r + m_l + 1 < n_lon:
+            j = (jc - m_l - 1) % n_lon
+            if not visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
+                           sin2_el, cos2_eta, range2):
+                break
+            m_l += 1
+    length = m_r + m_l + 1
+    if length >= n_lon:
+        return 0, n_lon
+    return (jc - m_l) % n_lon, length
