@@ -9,12 +9,13 @@ off-nadir angle of a nadir-pointing cone, the slant range) depends on the cell o
 ``X``, and is met on a half-line ``X >= X*_k``. So the visible cells of a row are
 ``cos(lon - lon_sat) >= X*/rho_sat``, one longitude interval, and the visibility margin of a
 cell, ``X - X*`` [km], is a smooth function of time (smooth through the satellite's passage
-over the pole, where its longitude is not): :func:`row_threshold` gives ``X*`` and its time
+over the pole, where its longitude is not): :func:`row_thresholds` gives ``X*`` and its time
 derivative in closed form, which the kernel interpolates between samples.
 
-A new limit slots in as one more ``X*_k`` (with its rate) in :func:`row_threshold`, as long
-as it is met on a half-line of ``X``; a limit met on an interval (a side-looking annulus)
-adds an upper threshold and a second interval per row.
+A new limit slots in as one more ``X*_k`` (with its rate) in :func:`row_thresholds`, as
+long as it is met on a half-line of ``X``; the kernel takes their largest and, where the
+binding limit changes within a step, every limit's own interpolant. A limit met on an
+interval (a side-looking annulus) adds an upper threshold and a second interval per row.
 """
 
 from __future__ import annotations
@@ -24,17 +25,16 @@ import math
 from covergrid.compute.jit import kernel_function, kernel_helper
 from covergrid.constants import WGS84_A_KM, WGS84_B_KM
 
-__all__ = ["central_angle_bound", "extent", "row_interval", "row_threshold", "visible"]
+__all__ = ["NO_LIMIT_KM", "binding", "central_angle_bound", "extent", "row_interval",
+           "row_thresholds", "visible"]
 
 #: Upper bound on the angle between the ellipsoid normal and the geocentric radius on WGS-84
 #: (the maximum is 0.1924 deg at 45 deg latitude; common practice), with a little margin.
 _VERTICAL_DEFLECTION_BOUND_RAD = math.radians(0.2)
 #: Extra central angle added to the candidate bound to absorb rounding [rad].
 _BOUND_MARGIN_RAD = 1e-6
-#: Threshold returned for "this limit excludes nothing" / "everything" [km]: beyond any
-#: projected coordinate (|X| <= |r_sat| < 1e6 km).
-_NO_LIMIT_KM = -1e9
-_ALL_LIMIT_KM = 1e9
+#: Threshold of an absent limit [km]: below any projected coordinate (|X| <= |r_sat|).
+NO_LIMIT_KM = -1e9
 
 
 @kernel_function
@@ -95,17 +95,21 @@ def _larger_root(a, b, c):
 
 
 @kernel_helper
-def row_threshold(x, y, z, vx, vy, vz, rho, zc, sin_lat, cos_lat, sin_el, cos_eta, range_max,
-                  want_rate):
-    """Threshold X* of the projected coordinate for one row, and its time derivative.
+def row_thresholds(x, y, z, vx, vy, vz, rho, zc, sin_lat, cos_lat, sin_el, cos_eta, range_max,
+                   want_rate):
+    """Thresholds X*_k of the projected coordinate for one row, one per limit, and their
+    time derivatives.
 
     Parameters are scalars: satellite Earth-fixed position [km] and velocity [km/s]; the
     row's cell centres at distance ``rho`` from the polar axis and height ``zc`` [km] with
     geodetic latitude (sin_lat, cos_lat); the limits ``sin_el`` = sin(eps_min) >= 0,
     ``cos_eta`` = cos(eta_max) (< -1.5: none), ``range_max`` [km] (<= 0: none).
 
-    Returns ``(X*, dX*/dt)`` [km, km/s] (the rate only with ``want_rate``, else 0): a cell of
-    the row at longitude lon is visible iff ``x cos(lon) + y sin(lon) >= X*``.
+    Returns ``(X_el, rate_el, X_cone, rate_cone, X_range, rate_range)`` [km, km/s] (rates
+    only with ``want_rate``, else 0; an absent limit, or a cone wider than the Earth, has
+    X = NO_LIMIT_KM and rate 0): a cell of the row at longitude lon meets limit k iff
+    ``x cos(lon) + y sin(lon) >= X_k``, and is visible when it meets all (see
+    :func:`binding`).
 
     Notes
     -----
@@ -117,7 +121,9 @@ def row_threshold(x, y, z, vx, vy, vz, rho, zc, sin_lat, cos_lat, sin_el, cos_et
     the satellite-to-cell vector on the nadir ``N = r^2 - rho X - z zc``. The limits are
     (elevation) ``P >= sin(eps) D``, (cone) ``N >= cos(eta) |r| D``, (range) ``D <= D_max``;
     the first two, squared, are quadratics in X whose larger root is the boundary (the
-    cone's near-side intersection; the elevation root with P >= 0), the third is linear.
+    cone's near-side intersection; the elevation root with P >= 0, taken from the horizon's
+    threshold X0 where P = 0 so that small elevations lose no digits), the third is
+    linear.
     Each boundary's rate follows by implicit differentiation, ``dX*/dt = -F_t / F_X``, of
     ``F = P - sin(eps) D`` and ``F = N - cos(eta) |r| D``. Geometry of a point seen from a
     satellite, as in Wertz and Larson, *Space Mission Analysis and Design*, 3rd ed.,
@@ -126,20 +132,23 @@ def row_threshold(x, y, z, vx, vy, vz, rho, zc, sin_lat, cos_lat, sin_el, cos_et
     dz = z - zc
     q = x * x + y * y + rho * rho + dz * dz
     qd = 2.0 * (x * vx + y * vy + dz * vz)
-    b1 = sin_lat * dz - rho * cos_lat
     s = sin_el
-    if s == 0.0:
-        best = -b1 / cos_lat
-    else:
-        best = _larger_root(cos_lat * cos_lat, 2.0 * (cos_lat * b1 + s * s * rho),
-                            b1 * b1 - s * s * q)
-    rate = 0.0
+    # elevation: P = cos_lat (X - X0) with X0 the horizon's own threshold; the root of
+    # P^2 = s^2 D^2 with P >= 0, written without cancellation (it is X0 + u, u >= 0):
+    # cos^2 u^2 + 2 s^2 rho u - s^2 D0^2 = 0, D0^2 = q - 2 rho X0
+    x_h = (rho * cos_lat - sin_lat * dz) / cos_lat
+    d0sq = max(q - 2.0 * rho * x_h, 0.0)
+    x_el = x_h + s * d0sq / (s * rho + math.sqrt(s * s * rho * rho + cos_lat * cos_lat * d0sq)
+                             ) if s > 0.0 else x_h
+    r_el = 0.0
     if want_rate:
         if s == 0.0:
-            rate = -sin_lat * vz / cos_lat
+            r_el = -sin_lat * vz / cos_lat
         else:
-            d = math.sqrt(max(q - 2.0 * rho * best, 1e-12))
-            rate = -(sin_lat * vz - s * qd / (2.0 * d)) / (cos_lat + s * rho / d)
+            d = math.sqrt(max(q - 2.0 * rho * x_el, 1e-12))
+            r_el = -(sin_lat * vz - s * qd / (2.0 * d)) / (cos_lat + s * rho / d)
+    x_c = NO_LIMIT_KM
+    r_c = 0.0
     if cos_eta > -1.5:
         r2 = x * x + y * y + z * z
         e1 = r2 - z * zc
@@ -148,21 +157,32 @@ def row_threshold(x, y, z, vx, vy, vz, rho, zc, sin_lat, cos_lat, sin_el, cos_et
         b = 2.0 * rho * (k2r2 - e1)
         c = e1 * e1 - k2r2 * q
         if b * b - 4.0 * a * c >= 0.0:  # otherwise the cone is wider than the Earth
-            xc = _larger_root(a, b, c)
-            if xc > best:
-                best = xc
-                if want_rate:
-                    rs = math.sqrt(r2)
-                    rv = x * vx + y * vy + z * vz
-                    d = math.sqrt(max(q - 2.0 * rho * xc, 1e-12))
-                    h_t = (2.0 * rv - vz * zc) - cos_eta * (rv / rs * d + rs * qd / (2.0 * d))
-                    rate = -h_t / (-rho + cos_eta * rs * rho / d)
+            x_c = _larger_root(a, b, c)
+            if want_rate:
+                rs = math.sqrt(r2)
+                rv = x * vx + y * vy + z * vz
+                d = math.sqrt(max(q - 2.0 * rho * x_c, 1e-12))
+                h_t = (2.0 * rv - vz * zc) - cos_eta * (rv / rs * d + rs * qd / (2.0 * d))
+                r_c = -h_t / (-rho + cos_eta * rs * rho / d)
+    x_r = NO_LIMIT_KM
+    r_r = 0.0
     if range_max > 0.0:
-        xr = (q - range_max * range_max) / (2.0 * rho)
-        if xr > best:
-            best = xr
-            rate = qd / (2.0 * rho)
-    return best, rate
+        x_r = (q - range_max * range_max) / (2.0 * rho)
+        r_r = qd / (2.0 * rho)
+    return x_el, r_el, x_c, r_c, x_r, r_r
+
+
+@kernel_helper
+def binding(lims):
+    """The binding (largest) threshold of the tuple :func:`row_thresholds` returns, its rate
+    and its index (0 elevation, 1 cone, 2 range)."""
+    x_el, r_el, x_c, r_c, x_r, r_r = lims
+    best, rate, k = x_el, r_el, 0
+    if x_c > best:
+        best, rate, k = x_c, r_c, 1
+    if x_r > best:
+        best, rate, k = x_r, r_r, 2
+    return best, rate, k
 
 
 @kernel_helper
@@ -232,7 +252,7 @@ def row_interval(sx, sy, sz, rs2, lon_s, w, rho, zc, sin_lat, cos_lat, cos_lon, 
     """Visible columns of one row as (start, length), wrapping modulo n_lon; length 0: none.
 
     ``w`` is the half-width of the visible longitudes about the satellite's longitude
-    ``lon_s`` from :func:`row_threshold` (acos of X*/rho_sat); the interval's two edges are
+    ``lon_s`` from :func:`row_thresholds` (acos of X*/rho_sat); the interval's two edges are
     confirmed with the exact test :func:`visible`, which decides.
     """
     jc = int(math.floor((lon_s - lon0) / dlon)) % n_lon

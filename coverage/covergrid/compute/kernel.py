@@ -44,7 +44,13 @@ import numpy as np
 
 from covergrid.compute.cell_events import apply_events, close_cells
 from covergrid.compute.crossings import cubic_range
-from covergrid.compute.footprint import central_angle_bound, row_interval, row_threshold
+from covergrid.compute.footprint import (
+    NO_LIMIT_KM,
+    binding,
+    central_angle_bound,
+    row_interval,
+    row_thresholds,
+)
 from covergrid.compute.jit import kernel_function
 from covergrid.compute.kernel_state import HIST0
 from covergrid.compute.row_events import changed_cells, timed_row
@@ -105,7 +111,9 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
     dt = step_s
     nvis = 0
     vx = vy = vz = 0.0
-    sat = (1.0, 0.0, 0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 0.0)
+    sat = (1.0, 0.0, 0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 0.0, 1.0, 1.0)
+    no_limits = (NO_LIMIT_KM, 0.0, NO_LIMIT_KM, 0.0, NO_LIMIT_KM, 0.0)
+    several = cos_eta > -1.5 or range_lim > 0.0  # more than the elevation limit
     for b in range(n_block):
         i = i0 + b
         timed = refine and i > 0
@@ -178,17 +186,18 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                     lon_1 = lon_p + d_lon - 2.0 * math.pi * math.floor(d_lon / (2.0 * math.pi)
                                                                      + 0.5)
                     lon_a, lon_b = cubic_range(lon_p, dt * dl_p, lon_1, dt * dl_s)
+                    r_lo, r_hi = cubic_range(rho_p, dt * drho_p, rho_s, dt * drho_s)
                     sat = (rho_p, drho_p, dl_p, lon_p, rho_s, drho_s, dl_s, lon_1,
                            lon_a - _EDGE_PAD_RAD, lon_b + _EDGE_PAD_RAD,
-                           (px * x + py * y) / (rho_p * rho_s), 1.0 if near_axis else 0.0)
+                           (px * x + py * y) / (rho_p * rho_s), 1.0 if near_axis else 0.0,
+                           max(r_lo - 1e-3, 1e-9), r_hi + 1e-3)
                 for r in range(lo, hi):
                     in_c = c_lo <= r < c_hi
-                    x1 = 0.0
-                    rate1 = 0.0
+                    lim1 = no_limits
                     if in_c or timed:
-                        x1, rate1 = row_threshold(x, y, z, vx, vy, vz, rho[r], zr[r],
-                                                  sin_lat[r], cos_lat[r], sin_el, cos_eta,
-                                                  range_lim, refine)
+                        lim1 = row_thresholds(x, y, z, vx, vy, vz, rho[r], zr[r], sin_lat[r],
+                                              cos_lat[r], sin_el, cos_eta, range_lim, refine)
+                    x1, rate1, _ = binding(lim1)
                     cs = 0
                     cl = 0
                     if in_c and x1 <= rho_s + 1e-9 * rs:
@@ -200,27 +209,28 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                         nvis += cl
                     ps = 0
                     pl = 0
-                    x0 = 0.0
-                    rate0 = 0.0
+                    lim0 = no_limits
                     if p_lo <= r < p_hi:
                         ps = int(rows_prev[s, r, 0])
                         pl = int(rows_prev[s, r, 1])
-                        x0 = rows_prev[s, r, 2]
-                        rate0 = rows_prev[s, r, 3]
+                        lim0 = (rows_prev[s, r, 2], rows_prev[s, r, 3], rows_prev[s, r, 4],
+                                rows_prev[s, r, 5], rows_prev[s, r, 6], rows_prev[s, r, 7])
                     elif timed:
-                        x0, rate0 = row_threshold(px, py, pz, pvx, pvy, pvz, rho[r], zr[r],
-                                                  sin_lat[r], cos_lat[r], sin_el, cos_eta,
-                                                  range_lim, True)
+                        lim0 = row_thresholds(px, py, pz, pvx, pvy, pvz, rho[r], zr[r],
+                                              sin_lat[r], cos_lat[r], sin_el, cos_eta,
+                                              range_lim, True)
+                    x0, rate0, _ = binding(lim0)
                     if in_c:
                         rows_prev[s, r, 0] = cs
                         rows_prev[s, r, 1] = cl
-                        rows_prev[s, r, 2] = x1
-                        rows_prev[s, r, 3] = rate1
+                        for k in range(6):
+                            rows_prev[s, r, 2 + k] = lim1[k]
                     base = r * n_lon
                     geo = (px, py, pvx, pvy, x, y, vx, vy, x0, rate0, x1, rate1)
                     if timed:
                         timed_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, lon0, dlon,
-                                  cos_lon, sin_lon, geo, sat, dt, t_sample - 1.0, kmax)
+                                  cos_lon, sin_lon, geo, sat, (lim0, lim1), several, dt,
+                                  t_sample - 1.0, kmax)
                     elif cs != ps or cl != pl:
                         changed_cells(acc, heads, events, base, cs, cl, ps, pl, n_lon, cos_lon,
                                       sin_lon, geo, dt, t_sample, False, kmax)

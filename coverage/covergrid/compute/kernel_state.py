@@ -40,9 +40,9 @@ SCRATCH_EVENTS = 64
 #: Columns of an event: cell, time [samples], change of the in-view count (+1, -1; 0 once
 #: applied), 1-based index of the cell's next event (0 = last).
 EVENT_COLUMNS = 4
-#: Per satellite and row, the previous sample's: interval start and length (columns), the
-#: row's threshold X* [km] and its rate [km/s] (covergrid.compute.footprint.row_threshold).
-ROW_COLUMNS = 4
+#: Per satellite and row, the previous sample's: interval start and length (columns), and
+#: each limit's threshold X* [km] and rate [km/s] (covergrid.compute.footprint.row_thresholds).
+ROW_COLUMNS = 8
 
 
 def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int,

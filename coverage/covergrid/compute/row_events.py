@@ -29,7 +29,9 @@ import math
 
 from covergrid.compute.cell_events import apply_event, push_event
 from covergrid.compute.crossings import cubic_range, hermite_crossings
+from covergrid.compute.footprint import NO_LIMIT_KM
 from covergrid.compute.jit import kernel_function, kernel_helper
+from covergrid.compute.kernel_state import SCRATCH_EVENTS
 
 __all__ = ["changed_cells", "timed_row"]
 
@@ -61,6 +63,71 @@ def _solve_cell(heads, ev, c, cl, sl, geo, dt, t0, in0, in1):
         tau = t1 if k == 0 else (t2 if k == 1 else t3)
         push_event(heads, ev, c, t0 + tau, -1.0 if state else 1.0)
         state = not state
+
+
+@kernel_helper
+def _limit_margin(k, lims, p0, q0, p1, q1, dt):
+    """Values and tau-rates at both samples of a cell's margin to limit k (see
+    :func:`_solve_cell_limits`), and whether the limit is present at both."""
+    lim0, lim1 = lims
+    x0 = lim0[2 * k]
+    x1 = lim1[2 * k]
+    return (p0 - x0, q0 - dt * lim0[2 * k + 1], p1 - x1, q1 - dt * lim1[2 * k + 1],
+            x0 > NO_LIMIT_KM and x1 > NO_LIMIT_KM)
+
+
+@kernel_helper
+def _hermite(p0, d0, p1, d1, t):
+    """The Hermite cubic through (0, p0, d0) and (1, p1, d1) at t."""
+    a3 = 2.0 * (p0 - p1) + d0 + d1
+    a2 = 3.0 * (p1 - p0) - 2.0 * d0 - d1
+    return ((a3 * t + a2) * t + d0) * t + p0
+
+
+@kernel_function
+def _solve_cell_limits(heads, ev, c, cl, sl, geo, lims, dt, t0, in0, in1):
+    """Queue the crossings of one cell within the step where the binding limit changes:
+    the cell is visible while every limit's margin (each its own Hermite cubic) is >= 0.
+    The limits' crossings, sorted, are the candidate times; the state between consecutive
+    ones is tested at their midpoint. ``lims`` = every limit's threshold and rate at the
+    two samples (:func:`covergrid.compute.footprint.row_thresholds`). The sorting uses the
+    queue's scratch rows (free until the sample's events are applied)."""
+    px, py, pvx, pvy, x, y, vx, vy = geo[0], geo[1], geo[2], geo[3], geo[4], geo[5], geo[6], geo[7]
+    p0 = cl * px + sl * py
+    q0 = dt * (cl * pvx + sl * pvy)
+    p1 = cl * x + sl * y
+    q1 = dt * (cl * vx + sl * vy)
+    last = ev.shape[0] - 1
+    sb = last - SCRATCH_EVENTS
+    nr = 0
+    for k in range(3):
+        g0, d0, g1, d1, present = _limit_margin(k, lims, p0, q0, p1, q1, dt)
+        if not present:
+            continue
+        n, t1, t2, t3 = hermite_crossings(g0, d0, g1, d1, g0 >= 0.0, g1 >= 0.0)
+        for m in range(n):
+            t = t1 if m == 0 else (t2 if m == 1 else t3)
+            j = nr
+            while j > 0 and ev[sb + j - 1, 1] > t:  # insertion, ascending
+                ev[sb + j, 1] = ev[sb + j - 1, 1]
+                j -= 1
+            ev[sb + j, 1] = t
+            nr += 1
+    state = in0
+    for m in range(nr):
+        t = ev[sb + m, 1]
+        nxt = ev[sb + m + 1, 1] if m + 1 < nr else 1.0
+        mid = 0.5 * (t + nxt)
+        inside = True
+        for k in range(3):
+            g0, d0, g1, d1, present = _limit_margin(k, lims, p0, q0, p1, q1, dt)
+            if present and _hermite(g0, d0, g1, d1, mid) < 0.0:
+                inside = False
+        if inside != state:
+            push_event(heads, ev, c, t0 + t, 1.0 if inside else -1.0)
+            state = inside
+    if state != in1:  # the exact test at the sample decides (a crossing within rounding)
+        push_event(heads, ev, c, t0 + 1.0, 1.0 if in1 else -1.0)
 
 
 @kernel_helper
@@ -110,12 +177,12 @@ def changed_cells(a, heads, ev, base, cs, cl, ps, pl, n_lon, cos_lon, sin_lon, g
                     push_event(heads, ev, base + j, t, delta)
 
 
-@kernel_function
+@kernel_helper
 def _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo, dt,
-                 t0, lo, hi, skip_changed):
+                 t0, lo, hi, skip_changed, lims, kinked):
     """Solve the cells of a row whose centre longitude lies in [lo, hi] (unwrapped; the
     whole row when that spans the circle), except, with ``skip_changed``, those whose
-    sampled state differs (solved already)."""
+    sampled state differs (solved already); with ``kinked`` limit by limit."""
     if hi - lo >= 2.0 * math.pi - dlon:
         j0 = 0
         j1 = n_lon
@@ -128,12 +195,16 @@ def _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
         in1 = cl > 0 and (j - cs) % n_lon < cl
         if skip_changed and in0 != in1:
             continue
-        _solve_cell(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, dt, t0, in0, in1)
+        if kinked:
+            _solve_cell_limits(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, lims, dt, t0,
+                               in0, in1)
+        else:
+            _solve_cell(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, dt, t0, in0, in1)
 
 
 @kernel_function
 def _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo, dt,
-                 t0, ranges, skip_changed):
+                 t0, ranges, skip_changed, lims, kinked):
     """Solve the cells of a row within the union of up to four longitude ranges ((lo, hi);
     lo > hi: unused), each cell once. Not inlined: rare and long."""
     (l0, h0), (l1, h1), (l2, h2), (l3, h3) = ranges
@@ -161,7 +232,7 @@ def _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
             span_hi = max(span_hi, hi)
     if span_hi - span_lo >= 2.0 * math.pi - dlon:
         _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-                     dt, t0, 0.0, 2.0 * math.pi, skip_changed)
+                     dt, t0, 0.0, 2.0 * math.pi, skip_changed, lims, kinked)
         return
     for k in range(4):
         lo, hi = (l0, h0) if k == 0 else ((l1, h1) if k == 1 else ((l2, h2) if k == 2
@@ -173,36 +244,90 @@ def _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
             continue
         if first > 0.0:
             _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon,
-                         geo, dt, t0, cur_lo, cur_hi, skip_changed)
+                         geo, dt, t0, cur_lo, cur_hi, skip_changed, lims, kinked)
         first = 1.0
         cur_lo = lo
         cur_hi = hi
     if first > 0.0:
         _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-                     dt, t0, cur_lo, cur_hi, skip_changed)
+                     dt, t0, cur_lo, cur_hi, skip_changed, lims, kinked)
+
+
+@kernel_helper
+def _kinked(lims, dt):
+    """Whether the binding limit changes within the step: another limit's Hermite threshold
+    rises above the binding one's somewhere (or the binding one differs at the samples)."""
+    lim0, lim1 = lims
+    b0 = 0
+    b1 = 0
+    for k in range(1, 3):
+        if lim0[2 * k] > lim0[2 * b0]:
+            b0 = k
+        if lim1[2 * k] > lim1[2 * b1]:
+            b1 = k
+    if b0 != b1:
+        return True
+    for k in range(3):
+        if k == b0 or (lim0[2 * k] <= NO_LIMIT_KM and lim1[2 * k] <= NO_LIMIT_KM):
+            continue
+        lo, hi = cubic_range(lim0[2 * b0] - lim0[2 * k],
+                             dt * (lim0[2 * b0 + 1] - lim0[2 * k + 1]),
+                             lim1[2 * b0] - lim1[2 * k],
+                             dt * (lim1[2 * b0 + 1] - lim1[2 * k + 1]))
+        if lo < 0.0:
+            return True
+    return False
 
 
 @kernel_helper
 def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-              sat, dt, t0, kmax):
+              sat, lims, several, dt, t0, kmax):
     """Queue every crossing of one row in the step from t0 (continuous time; see module).
 
     ``geo`` as for the cells; ``sat`` = previous and current satellite distance from the
     polar axis [km], its rate [km/s], longitude rate [rad/s] and longitude [rad] (the
     current one unwrapped next to the previous), the bounds of the longitude over the step
     [rad], the cosine of the longitude's change, and 1.0 when the track passes so close to
-    the polar axis that longitude is no guide (then every cell of the row is solved).
+    the polar axis that longitude is no guide (then every cell of the row is solved), and
+    the bounds of the distance from the axis over the step [km]; ``lims`` every limit's
+    threshold and rate at both samples, ``several`` whether more than one limit applies.
     """
     x0 = geo[8]
     r0 = geo[9]
     x1 = geo[10]
     r1 = geo[11]
     (rho_p, drho_p, dl_p, lon_p, rho_s, drho_s, dl_s, lon_s, lon_a, lon_b, cos_dlon,
-     near_axis) = sat
+     near_axis, r_lo, r_hi) = sat
     none = (1.0, -1.0)
+    kinked = several and _kinked(lims, dt)
     if near_axis > 0.0:
         _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-                     dt, t0, ((0.0, 2.0 * math.pi), none, none, none), False)
+                     dt, t0, ((0.0, 2.0 * math.pi), none, none, none), False, lims, kinked)
+        return
+    if kinked:
+        # the binding limit changes within the step: bound the threshold X* = max_k X*_k
+        # over the step by the limits' own Hermite ranges (from below by the largest least
+        # value), and solve every cell in reach limit by limit
+        x_lo = NO_LIMIT_KM
+        x_hi = NO_LIMIT_KM
+        lim0, lim1 = lims
+        for k in range(3):
+            if lim0[2 * k] > NO_LIMIT_KM and lim1[2 * k] > NO_LIMIT_KM:
+                k_lo, k_hi = cubic_range(lim0[2 * k], dt * lim0[2 * k + 1], lim1[2 * k],
+                                         dt * lim1[2 * k + 1])
+                x_lo = max(x_lo, k_lo)
+                x_hi = max(x_hi, k_hi)
+        c_lo = x_lo / r_hi if x_lo >= 0.0 else x_lo / r_lo
+        c_hi = x_hi / r_lo if x_hi >= 0.0 else x_hi / r_hi
+        if pl == 0 and cl == 0 and c_lo >= 1.0:
+            return
+        w_hi = math.pi if c_lo <= -1.0 else math.acos(min(c_lo, 1.0))
+        w_lo = 0.0 if c_hi >= 1.0 else math.acos(max(c_hi, -1.0))
+        w_hi += _EDGE_PAD_RAD
+        w_lo = max(w_lo - _EDGE_PAD_RAD, 0.0)
+        _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
+                     dt, t0, ((lon_a - w_hi, lon_b - w_lo), (lon_a + w_lo, lon_b + w_hi),
+                              none, none), False, lims, True)
         return
     # the interval's half-width W over the step: cos W = c = X*/rho_sat, smooth
     c0 = x0 / rho_p
@@ -257,7 +382,8 @@ def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
         if not loose:
             if gap[0] <= gap[1] or right[0] <= right[1] or left[0] <= left[1]:
                 _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon,
-                             sin_lon, geo, dt, t0, (gap, right, left, none), True)
+                             sin_lon, geo, dt, t0, (gap, right, left, none), True, lims,
+                             False)
             return
     else:
         c_lo, c_hi = cubic_range(c0, dt * dc0, c1, dt * dc1)
@@ -273,4 +399,4 @@ def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
     w_lo = max(w_lo - _EDGE_PAD_RAD, 0.0)
     _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo, dt,
                  t0, ((lon_a - w_hi, lon_b - w_lo), (lon_a + w_lo, lon_b + w_hi), gap, none),
-                 partly)
+                 partly, lims, False)
