@@ -174,11 +174,11 @@ def compute_coverage(
     compute : bool, optional
         If False return the lazy, dask-backed Dataset.
     refine_transitions : bool, optional
-        Place each gap's start and end at the time the limit was crossed between two samples
-        (linear interpolation of the visibility margin of the satellite concerned) instead of
-        at the sample after it. Affects max_gap, mean_gap, time_average_gap and
-        mean_response_time only; see :mod:`covergrid.compute.metrics`. False gives the pure sampled
-        values.
+        Continuous time (the default): every rise and set of a satellite over a cell at the
+        time its limit is crossed between samples, passes that begin and end between two
+        samples included, and every metric an integral over those times; the span's end is
+        then a sample too. False gives the pure sampled values (sample and hold). See
+        :mod:`covergrid.compute.metrics`.
 
     Returns
     -------
