@@ -13,7 +13,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from covergrid.compute.crossings import cubic_range, hermite_crossings
-from covergrid.compute.footprint import NO_LIMIT_KM, binding, row_thresholds, visible
+from covergrid.compute.footprint import NO_LIMIT_KM, binding, row_interval, row_thresholds
 from covergrid.constants import WGS84_A_KM, WGS84_E2
 from covergrid.earth.frames import geodetic_to_ecef, look_angles, off_nadir_angle
 
@@ -60,13 +60,13 @@ def test_threshold_separates_the_visible_cells_of_a_row(lat, alt, sat_lat, sat_l
     proj = sat[0] * np.cos(lon) + sat[1] * np.sin(lon)
     clear = np.abs(proj - x_thr) > ROUNDING_KM
     np.testing.assert_array_equal((proj >= x_thr)[clear], seen[clear])
-    # and the kernel's exact cell test agrees too
-    rs2 = float(sat @ sat)
-    exact = np.array([visible(sat[0], sat[1], sat[2], rs2, rho, zc, math.sin(lat_r),
-                              math.cos(lat_r), math.cos(v), math.sin(v), s_el * s_el,
-                              cos_eta**2 if cone_deg else -1.0,
-                              range_km**2 if range_km else -1.0) for v in lon])
-    np.testing.assert_array_equal(exact[clear], seen[clear])
+    # and the kernel's row interval is exactly those columns
+    cols = np.arange(lon.size)
+    jc = int(np.argmin(np.abs(np.angle(np.exp(1j * (lon - math.atan2(sat[1], sat[0])))))))
+    start, length = row_interval(sat[0], sat[1], x_thr, jc, 3, 3, np.cos(lon), np.sin(lon),
+                                 lon.size)
+    inside = ((cols - start) % lon.size) < length
+    np.testing.assert_array_equal(inside[clear], seen[clear])
 
 
 @settings(max_examples=100, deadline=None)

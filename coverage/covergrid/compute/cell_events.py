@@ -108,8 +108,12 @@ def apply_events(a, heads, ev, kmax):
     last = ev.shape[0] - 1
     scratch = last - SCRATCH_EVENTS
     n_ev = int(ev[last, 0])
-    for q in range(n_ev):
-        c = int(ev[q, 0])
+    # many events (a dense constellation): visit the cells in order, so that the per-cell
+    # rows are read one after the other; few: visit the cells of the queued events. Each
+    # cell is applied once either way, its events in time order: the same values.
+    by_cell = 4 * n_ev > heads.shape[0]
+    for q in range(heads.shape[0] if by_cell else n_ev):
+        c = q if by_cell else int(ev[q, 0])
         head = int(heads[c])
         if head == 0:
             continue  # this cell's events are applied already

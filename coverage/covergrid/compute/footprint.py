@@ -7,8 +7,9 @@ projected on the cell's meridian direction) reaches a threshold ``X*`` that depe
 the satellite and the row: every limit (elevation above the ellipsoid-normal horizon, the
 off-nadir angle of a nadir-pointing cone, the slant range) depends on the cell only through
 ``X``, and is met on a half-line ``X >= X*_k``. So the visible cells of a row are
-``cos(lon - lon_sat) >= X*/rho_sat``, one longitude interval, and the visibility margin of a
-cell, ``X - X*`` [km], is a smooth function of time (smooth through the satellite's passage
+``cos(lon - lon_sat) >= X*/rho_sat``, one longitude interval, decided exactly by that test
+(:func:`row_interval`), and the visibility margin of a cell, ``X - X*`` [km], is a smooth
+function of time (smooth through the satellite's passage
 over the pole, where its longitude is not): :func:`row_thresholds` gives ``X*`` and its time
 derivative in closed form, which the kernel interpolates between samples.
 
@@ -26,7 +27,7 @@ from covergrid.compute.jit import kernel_function, kernel_helper
 from covergrid.constants import WGS84_A_KM, WGS84_B_KM
 
 __all__ = ["NO_LIMIT_KM", "binding", "central_angle_bound", "extent", "row_interval",
-           "row_thresholds", "visible"]
+           "row_thresholds", "wrap_column"]
 
 #: Upper bound on the angle between the ellipsoid normal and the geocentric radius on WGS-84
 #: (the maximum is 0.1924 deg at 45 deg latitude; common practice), with a little margin.
@@ -186,102 +187,71 @@ def binding(lims):
 
 
 @kernel_helper
-def visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cl, sl, sin2_el, cos2_eta, range2):
-    """Exact visibility of one cell from a satellite at (sx, sy, sz) [km] (scalars only).
-
-    The cell centre is (rho cl, rho sl, zc) on the ellipsoid with normal
-    (cos_lat cl, cos_lat sl, sin_lat). Limits: elevation above the ellipsoid-normal horizon
-    >= eps_min (sin2_el = sin^2 eps_min, eps_min >= 0); off-nadir angle from the geocentric
-    nadir <= eta_max (cos2_eta = cos^2 eta_max, negative when unlimited); slant range
-    <= D_max (range2 = D^2, negative when unlimited).
-    """
-    dx = sx - rho * cl
-    dy = sy - rho * sl
-    dz = sz - zc
-    up = cos_lat * (dx * cl + dy * sl) + sin_lat * dz
-    if up < 0.0:
-        return False
-    d2 = dx * dx + dy * dy + dz * dz
-    if up * up < sin2_el * d2:
-        return False
-    if range2 >= 0.0 and d2 > range2:
-        return False
-    if cos2_eta >= 0.0:
-        nd = sx * dx + sy * dy + sz * dz
-        if nd < 0.0 or nd * nd < cos2_eta * rs2 * d2:
-            return False
-    return True
+def wrap_column(j, n_lon):
+    """Column j in [-n_lon, 2 n_lon) taken modulo n_lon, without an integer division."""
+    if j >= n_lon:
+        return j - n_lon
+    if j < 0:
+        return j + n_lon
+    return j
 
 
 @kernel_helper
-def extent(step, m, cap, jc, sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon, sin_lon,
-           n_lon, sin2_el, cos2_eta, range2, known0):
-    """Largest m in [0, cap] with column jc + step*m visible, searched from the estimate m.
+def _seen(j, x, y, x_thr, cos_lon, sin_lon):
+    """Whether column j of a row meets every limit: its projected coordinate reaches X*."""
+    return cos_lon[j] * x + sin_lon[j] * y >= x_thr
+
+
+@kernel_helper
+def extent(step, m, cap, jc, x, y, x_thr, cos_lon, sin_lon, n_lon, known0):
+    """Largest m in [0, cap] with column jc + step*m seen, searched from the estimate m.
 
     Visibility falls monotonically with m. With ``known0`` column jc (m = 0) is known to be
-    visible and is not tested; otherwise -1 is returned when it is not visible.
+    seen and is not tested; otherwise -1 is returned when it is not.
     """
     if m < 0:
         m = 0
     if m > cap:
         m = cap
-    j = (jc + step * m) % n_lon
-    if visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j], sin2_el,
-               cos2_eta, range2):
-        while m < cap:
-            j = (jc + step * (m + 1)) % n_lon
-            if not visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
-                           sin2_el, cos2_eta, range2):
-                break
+    if _seen(wrap_column(jc + step * m, n_lon), x, y, x_thr, cos_lon, sin_lon):
+        while m < cap and _seen(wrap_column(jc + step * (m + 1), n_lon), x, y, x_thr, cos_lon,
+                                sin_lon):
             m += 1
         return m
     m -= 1
     stop = 0 if known0 else -1
-    while m > stop:
-        j = (jc + step * m) % n_lon
-        if visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j], sin2_el,
-                   cos2_eta, range2):
-            break
+    while m > stop and not _seen(wrap_column(jc + step * m, n_lon), x, y, x_thr, cos_lon,
+                                 sin_lon):
         m -= 1
     return m
 
 
 @kernel_helper
-def row_interval(sx, sy, sz, rs2, lon_s, w, rho, zc, sin_lat, cos_lat, cos_lon, sin_lon, lon0,
-                 dlon, n_lon, sin2_el, cos2_eta, range2):
+def row_interval(x, y, x_thr, jc, m_r, m_l, cos_lon, sin_lon, n_lon):
     """Visible columns of one row as (start, length), wrapping modulo n_lon; length 0: none.
 
-    ``w`` is the half-width of the visible longitudes about the satellite's longitude
-    ``lon_s`` from :func:`row_thresholds` (acos of X*/rho_sat); the interval's two edges are
-    confirmed with the exact test :func:`visible`, which decides.
+    A column is visible when its projected coordinate ``x cos(lon) + y sin(lon)`` reaches the
+    row's binding threshold ``x_thr`` (:func:`row_thresholds`, :func:`binding`); the visible
+    columns are one interval about column ``jc``, the satellite's. ``m_r`` and ``m_l`` are
+    estimates of the offsets of its two ends from jc, from which the ends are searched.
     """
-    jc = int(math.floor((lon_s - lon0) / dlon)) % n_lon
-    off = lon0 + (jc + 0.5) * dlon - lon_s  # centre of jc relative to the satellite
     cap = (n_lon - 1) // 2
     # column jc holds the satellite's longitude, so if any column is visible it is; the
     # right-hand search finds out (without a separate test when the estimate is visible)
-    m_r = extent(1, int(math.floor((w - off) / dlon)), cap, jc, sx, sy, sz, rs2, rho, zc,
-                 sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2, False)
+    m_r = extent(1, m_r, cap, jc, x, y, x_thr, cos_lon, sin_lon, n_lon, False)
     if m_r < 0:
         return 0, 0
-    m_l = extent(-1, int(math.floor((w + off) / dlon)), cap, jc, sx, sy, sz, rs2, rho, zc,
-                 sin_lat, cos_lat, cos_lon, sin_lon, n_lon, sin2_el, cos2_eta, range2, True)
+    m_l = extent(-1, m_l, cap, jc, x, y, x_thr, cos_lon, sin_lon, n_lon, True)
     if m_r == cap or m_l == cap:
         # the footprint reaches round the row: the cells left near the far side are tested
         # one by one
-        while m_r + m_l + 1 < n_lon:
-            j = (jc + m_r + 1) % n_lon
-            if not visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
-                           sin2_el, cos2_eta, range2):
-                break
+        while m_r + m_l + 1 < n_lon and _seen(wrap_column(jc + m_r + 1, n_lon), x, y, x_thr,
+                                              cos_lon, sin_lon):
             m_r += 1
-        while m_r + m_l + 1 < n_lon:
-            j = (jc - m_l - 1) % n_lon
-            if not visible(sx, sy, sz, rs2, rho, zc, sin_lat, cos_lat, cos_lon[j], sin_lon[j],
-                           sin2_el, cos2_eta, range2):
-                break
+        while m_r + m_l + 1 < n_lon and _seen(wrap_column(jc - m_l - 1, n_lon), x, y, x_thr,
+                                              cos_lon, sin_lon):
             m_l += 1
     length = m_r + m_l + 1
     if length >= n_lon:
         return 0, n_lon
-    return (jc - m_l) % n_lon, length
+    return wrap_column(jc - m_l, n_lon), length

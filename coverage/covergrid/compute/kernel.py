@@ -50,6 +50,7 @@ from covergrid.compute.footprint import (
     central_angle_bound,
     row_interval,
     row_thresholds,
+    wrap_column,
 )
 from covergrid.compute.jit import kernel_function
 from covergrid.compute.kernel_state import HIST0
@@ -101,9 +102,6 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
     n_rows = rho.shape[0]
     kmax = acc.shape[1] - HIST0 - 1
     sin_el = math.sin(el_min_rad)
-    sin2_el = sin_el * sin_el
-    cos2_eta = math.cos(eta_max_rad) ** 2 if eta_max_rad > 0.0 else -1.0
-    range2 = range_max_km * range_max_km if range_max_km > 0.0 else -1.0
     cos_eta = math.cos(eta_max_rad) if eta_max_rad > 0.0 else -2.0
     range_lim = range_max_km if range_max_km > 0.0 else -1.0
     psi_lo_band = psi[0]
@@ -170,8 +168,11 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                     x_lo = np.searchsorted(psi, bot - lam_s)
                     x_hi = np.searchsorted(psi, top + lam_s, side="right")
                     lo, hi = (x_lo, x_hi) if lo >= hi else (min(lo, x_lo), max(hi, x_hi))
+            jc_prev = prev_rows[s, 2]
             if lo < hi:
                 lon_s = math.atan2(y, x)
+                jc = int(math.floor((lon_s - lon0) / dlon)) % n_lon
+                off = lon0 + (jc + 0.5) * dlon - lon_s  # centre of column jc from the satellite
                 if timed:
                     rho_p = math.sqrt(px * px + py * py)
                     drho_p = (px * pvx + py * pvy) / rho_p
@@ -198,32 +199,42 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                         lim1 = row_thresholds(x, y, z, vx, vy, vz, rho[r], zr[r], sin_lat[r],
                                               cos_lat[r], sin_el, cos_eta, range_lim, refine)
                     x1, rate1, _ = binding(lim1)
-                    cs = 0
-                    cl = 0
-                    if in_c and x1 <= rho_s + 1e-9 * rs:
-                        cw = x1 / rho_s if rho_s > 0.0 else -2.0
-                        w = math.pi if cw <= -1.0 else (0.0 if cw >= 1.0 else math.acos(cw))
-                        cs, cl = row_interval(x, y, z, rs2, lon_s, w, rho[r], zr[r],
-                                              sin_lat[r], cos_lat[r], cos_lon, sin_lon,
-                                              lon0, dlon, n_lon, sin2_el, cos2_eta, range2)
-                        nvis += cl
                     ps = 0
                     pl = 0
                     lim0 = no_limits
                     if p_lo <= r < p_hi:
                         ps = int(rows_prev[s, r, 0])
                         pl = int(rows_prev[s, r, 1])
-                        lim0 = (rows_prev[s, r, 2], rows_prev[s, r, 3], rows_prev[s, r, 4],
-                                rows_prev[s, r, 5], rows_prev[s, r, 6], rows_prev[s, r, 7])
+                        if several:
+                            lim0 = (rows_prev[s, r, 2], rows_prev[s, r, 3], rows_prev[s, r, 4],
+                                    rows_prev[s, r, 5], rows_prev[s, r, 6], rows_prev[s, r, 7])
+                        else:
+                            lim0 = (rows_prev[s, r, 2], rows_prev[s, r, 3], NO_LIMIT_KM, 0.0,
+                                    NO_LIMIT_KM, 0.0)
                     elif timed:
                         lim0 = row_thresholds(px, py, pz, pvx, pvy, pvz, rho[r], zr[r],
                                               sin_lat[r], cos_lat[r], sin_el, cos_eta,
                                               range_lim, True)
                     x0, rate0, _ = binding(lim0)
+                    cs = 0
+                    cl = 0
+                    if in_c and x1 <= rho_s + 1e-9 * rs:
+                        # the interval's ends, searched from where they were at the previous
+                        # sample (relative to the satellite's column), or from the half-width
+                        if 0 < pl < n_lon:
+                            m_r = wrap_column(ps + pl - 1 - jc_prev, n_lon)
+                            m_l = wrap_column(jc_prev - ps, n_lon)
+                        else:
+                            cw = x1 / rho_s if rho_s > 0.0 else -2.0
+                            w = math.pi if cw <= -1.0 else (0.0 if cw >= 1.0 else math.acos(cw))
+                            m_r = int(math.floor((w - off) / dlon))
+                            m_l = int(math.floor((w + off) / dlon))
+                        cs, cl = row_interval(x, y, x1, jc, m_r, m_l, cos_lon, sin_lon, n_lon)
+                        nvis += cl
                     if in_c:
                         rows_prev[s, r, 0] = cs
                         rows_prev[s, r, 1] = cl
-                        for k in range(6):
+                        for k in range(6 if several else 2):
                             rows_prev[s, r, 2 + k] = lim1[k]
                     base = r * n_lon
                     geo = (px, py, pvx, pvy, x, y, vx, vy, x0, rate0, x1, rate1)
@@ -236,6 +247,8 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                                       sin_lon, geo, dt, t_sample, False, kmax)
             prev_rows[s, 0] = c_lo
             prev_rows[s, 1] = c_hi
+            if lo < hi:
+                prev_rows[s, 2] = jc
             prev_pos[s, 0] = x
             prev_pos[s, 1] = y
             prev_pos[s, 2] = z

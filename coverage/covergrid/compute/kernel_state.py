@@ -92,7 +92,8 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int,
         "events": np.zeros((cap + SCRATCH_EVENTS + 1, EVENT_COLUMNS)),
         "n_cells": np.array([n_cells], np.int64),
         "rows_prev": np.zeros((n_sat, n_rows, ROW_COLUMNS)),
-        "prev_rows": np.zeros((n_sat, 2), np.int64),
+        # per satellite: the rows of the previous sample's intervals, and its column
+        "prev_rows": np.zeros((n_sat, 3), np.int64),
         # per satellite: the radius the footprint bound was last computed for, the bound,
         # and the previous sample's bound
         "bound_cache": np.full((n_sat, 3), -1.0),

@@ -29,7 +29,7 @@ import math
 
 from covergrid.compute.cell_events import apply_event, push_event
 from covergrid.compute.crossings import cubic_range, hermite_crossings
-from covergrid.compute.footprint import NO_LIMIT_KM
+from covergrid.compute.footprint import NO_LIMIT_KM, wrap_column
 from covergrid.compute.jit import kernel_function, kernel_helper
 from covergrid.compute.kernel_state import SCRATCH_EVENTS
 
@@ -165,8 +165,8 @@ def changed_cells(a, heads, ev, base, cs, cl, ps, pl, n_lon, cos_lon, sin_lon, g
             lo = lo0 if part == 0 else lo1
             hi = hi0 if part == 0 else hi1
             for jj in range(lo, hi):
-                j = jj % n_lon
-                if per_cell and (j - sb) % n_lon < lb:
+                j = wrap_column(jj, n_lon)  # lo, hi within [0, 2 n_lon)
+                if per_cell and wrap_column(j - sb, n_lon) < lb:
                     continue
                 if timed:
                     _solve_cell(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, dt, t,
@@ -189,10 +189,11 @@ def _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
     else:
         j0 = int(math.ceil((lo - lon0) / dlon - 0.5))
         j1 = int(math.floor((hi - lon0) / dlon - 0.5)) + 1
-    for jj in range(j0, j1):
-        j = jj % n_lon
-        in0 = pl > 0 and (j - ps) % n_lon < pl
-        in1 = cl > 0 and (j - cs) % n_lon < cl
+    j = (j0 - 1) % n_lon
+    for _ in range(j0, j1):
+        j = 0 if j == n_lon - 1 else j + 1
+        in0 = pl > 0 and wrap_column(j - ps, n_lon) < pl
+        in1 = cl > 0 and wrap_column(j - cs, n_lon) < cl
         if skip_changed and in0 != in1:
             continue
         if kinked:
