@@ -25,8 +25,8 @@ from typing import Any
 
 import numpy as np
 
-from covergrid.constants import WGS84_A_KM, WGS84_E2
 from covergrid.compute.region import Region
+from covergrid.constants import WGS84_A_KM, WGS84_E2
 from covergrid.errors import CovergridError
 
 __all__ = ["Grid", "GridSpec", "authalic_q", "ellipsoid_area_km2", "grid_shape",

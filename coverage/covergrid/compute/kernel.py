@@ -63,7 +63,7 @@ _EDGE_PAD_RAD = 1e-4
 
 @kernel_function
 def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_lon, lon0, dlon,
-            n_lon,
+            n_lon, n_win,
             el_min_rad, eta_max_rad, range_max_km, refine, step_s, acc, heads, events,
             rows_prev, prev_rows, bound_cache, prev_pos, visits):
     """Advance one latitude band's streaming state over a block of samples.
@@ -85,6 +85,11 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
         Row geometry of the band (see :attr:`covergrid.compute.grid.Grid.row_geometry`).
     lon0, dlon : float
         Western edge of column 0 and column width [rad]; n_lon columns cover 360 deg.
+    n_win : int
+        Columns that are cells, from column 0 (n_lon without longitude limits): a row's
+        cells are ``r * n_win + j`` for j < n_win, and the columns beyond are never visited
+        (:mod:`covergrid.compute.row_events`). A cell whose ``heads`` entry is -1 lies
+        outside the grid's region and is skipped.
     el_min_rad, eta_max_rad, range_max_km : float
         Sensor limits; eta_max_rad <= 0 and range_max_km <= 0 mean "no limit".
     refine : bool
@@ -236,15 +241,15 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                         rows_prev[s, r, 1] = cl
                         for k in range(6 if several else 2):
                             rows_prev[s, r, 2 + k] = lim1[k]
-                    base = r * n_lon
+                    base = r * n_win
                     geo = (px, py, pvx, pvy, x, y, vx, vy, x0, rate0, x1, rate1)
                     if timed:
-                        timed_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, lon0, dlon,
-                                  cos_lon, sin_lon, geo, sat, (lim0, lim1), several, dt,
+                        timed_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, n_win, lon0,
+                                  dlon, cos_lon, sin_lon, geo, sat, (lim0, lim1), several, dt,
                                   t_sample - 1.0, kmax)
                     elif cs != ps or cl != pl:
-                        changed_cells(acc, heads, events, base, cs, cl, ps, pl, n_lon, cos_lon,
-                                      sin_lon, geo, dt, t_sample, False, kmax)
+                        changed_cells(acc, heads, events, base, cs, cl, ps, pl, n_lon, n_win,
+                                      cos_lon, sin_lon, geo, dt, t_sample, False, kmax)
             prev_rows[s, 0] = c_lo
             prev_rows[s, 1] = c_hi
             if lo < hi:
@@ -269,11 +274,12 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
              rows: dict[str, np.ndarray], lon0_rad: float, dlon_rad: float, n_lon: int,
              el_min_rad: float, eta_max_rad: float, range_max_km: float,
              refine: bool = True, vel_km_s: np.ndarray | None = None,
-             step_s: float = 1.0) -> None:
+             step_s: float = 1.0, n_win: int | None = None) -> None:
     """Python entry point to :func:`advance` with the state held in a dict.
 
     With ``refine``, ``vel_km_s`` (the positions' time derivatives, same shape) and the
-    sample spacing ``step_s`` [s] are required.
+    sample spacing ``step_s`` [s] are required. ``n_lon`` columns from ``lon0_rad`` go
+    round the circle; the first ``n_win`` of them (default all) are the band's cells.
     """
     st = state
     pos = np.ascontiguousarray(pos_km, dtype=np.float64)
@@ -286,7 +292,7 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
     lon = lon0_rad + (np.arange(n_lon) + 0.5) * dlon_rad
     advance(pos, vel, int(i0), rows["rho_km"], rows["z_km"], rows["sin_lat"], rows["cos_lat"],
             rows["psi_rad"], np.cos(lon), np.sin(lon), float(lon0_rad), float(dlon_rad),
-            int(n_lon), float(el_min_rad),
+            int(n_lon), int(n_lon if n_win is None else n_win), float(el_min_rad),
             float(eta_max_rad), float(range_max_km), bool(refine), float(step_s), st["acc"],
             st["heads"], st["events"], st["rows_prev"], st["prev_rows"], st["bound_cache"],
             st["prev_pos"], st["visits"])

@@ -203,8 +203,12 @@ def parse_yaml(text: str, source: str = "study file") -> Any:
         loader.dispose()
 
 
-def parse_study(data: Any, source: str = "study file") -> Study:
+def parse_study(data: Any, source: str = "study file",
+                base_dir: str | os.PathLike | None = None) -> Study:
     """Validate plain data (as read from YAML) into a :class:`Study`.
+
+    Files the study names (a region's GeoJSON, a targets CSV) are relative to ``base_dir``
+    (the study file's folder; default the current folder).
 
     Raises
     ------
@@ -222,7 +226,8 @@ def parse_study(data: Any, source: str = "study file") -> Study:
         raise StudyError(f"top-level keys must be text; got {show_value(bad_keys[0])}",
                          field=source)
     try:
-        return Study.model_validate(data)
+        return Study.model_validate(
+            data, context={"base_dir": None if base_dir is None else Path(base_dir)})
     except ValidationError as exc:
         raise study_error_from(exc, Study) from None
 
@@ -256,7 +261,7 @@ def load_study(path: str | Path) -> Study:
                          "allowed: UTF-8 text; save the file as UTF-8", field=name) from None
     if text.startswith("\ufeff"):
         text = text[1:]
-    return parse_study(parse_yaml(text, source=name), source=name)
+    return parse_study(parse_yaml(text, source=name), source=name, base_dir=path.parent)
 
 
 def read_study_file(path: str | os.PathLike) -> bytes:
@@ -308,4 +313,4 @@ def with_overrides(study: Study, overrides: dict[str, Any], source: str) -> Stud
                 node[part] = {}
             node = node[part]
         node[key] = value
-    return parse_study(data, source=source)
+    return parse_study(data, source=source, base_dir=study.base_dir)

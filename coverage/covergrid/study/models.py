@@ -10,15 +10,17 @@ them, once, into what the computation takes.
 from __future__ import annotations
 
 import datetime as _dt
+from pathlib import Path
 from typing import Any
 
 import yaml
-from pydantic import Field, field_validator, model_validator
+from pydantic import Field, PrivateAttr, ValidationInfo, field_validator, model_validator
 
 from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError
 from covergrid.orbits.walker import count_walker_options
 from covergrid.study.messages import Problems, format_path, reason_of
+from covergrid.study.place_sections import RegionSection, TargetsSection
 from covergrid.study.sections import (
     NAME_RE,
     ComputeSection,
@@ -61,6 +63,10 @@ class Study(SectionModel):
     sensor: SensorSection = Field(default_factory=lambda: SensorSection.model_validate({}))
     grid: GridSection = Field(default_factory=lambda: GridSection.model_validate({}))
     requirement: RequirementSection | None = None
+    region: RegionSection | None = Field(
+        None, description="Compute only the cells in GeoJSON areas and/or on land or sea.")
+    targets: TargetsSection | None = Field(
+        None, description="Point targets evaluated exactly at each site.")
     maps: MapsSection = Field(default_factory=lambda: MapsSection.model_validate({}))
     compute: ComputeSection = Field(default_factory=lambda: ComputeSection.model_validate({}))
     output: OutputSection = Field(default_factory=lambda: OutputSection.model_validate({}))
@@ -71,6 +77,18 @@ class Study(SectionModel):
         "samples (true), or at the sample (false: pure sampled values).")
 
     _study_text = field_validator("study", mode="before")(text_id)
+    _base_dir: Path | None = PrivateAttr(None)
+
+    @model_validator(mode="after")
+    def _remember_base_dir(self, info: ValidationInfo) -> Study:
+        ctx = info.context if isinstance(info.context, dict) else {}
+        self._base_dir = ctx.get("base_dir")
+        return self
+
+    @property
+    def base_dir(self) -> Path | None:
+        """Folder the study's files are relative to (None: the current folder)."""
+        return self._base_dir
 
     @field_validator("study")
     @classmethod
