@@ -192,7 +192,8 @@ def _civ(a_km, sensor: Sensor, cells: int, band_share: float) -> np.ndarray:
 def _footprint_rows(a_km, sensor: Sensor, study: ResolvedStudy) -> np.ndarray:
     """Latitude rows each satellite's coverage circle spans (at most the grid's rows)."""
     lam_deg = np.degrees(footprint_central_angle_rad(a_km, sensor))
-    return np.minimum(2.0 * lam_deg / study.grid.resolution_deg + 1.0, study.grid.n_lat)
+    return np.minimum(2.0 * lam_deg / study.grid.resolution_deg + 1.0,
+                      study.grid.cropped().n_lat)
 
 
 def _kernel_s(visits: float, row_samples: float, cells: float) -> float:
@@ -202,9 +203,11 @@ def _kernel_s(visits: float, row_samples: float, cells: float) -> float:
 
 
 def _band_share(study: ResolvedStudy) -> float:
-    """Share of the sphere's area between the grid's latitudes."""
-    g = study.grid
-    return 0.5 * (math.sin(math.radians(g.lat_max_deg)) - math.sin(math.radians(g.lat_min_deg)))
+    """Share of the sphere's area within the grid's computed window (latitudes and
+    longitudes; a region's cells outside its areas are counted, so the estimate errs high)."""
+    g = study.grid.cropped()
+    return (0.5 * (math.sin(math.radians(g.lat_max_deg)) - math.sin(math.radians(g.lat_min_deg)))
+            * g.n_lon / g.n_lon_circle)
 
 
 def _figures_bytes(study: ResolvedStudy, n_sat: int, cells: int) -> int:
@@ -267,7 +270,8 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     study = as_resolved(study)
     elements = study.elements
     n_sat = len(elements.ids)
-    rows, cols = study.grid.n_lat, study.grid.n_lon
+    grid = study.grid.cropped()  # the window the engine computes
+    rows, cols = grid.n_lat, grid.n_lon
     cells = rows * cols
     k = study.nfold_max
     n_steps = study.n_steps
