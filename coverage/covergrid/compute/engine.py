@@ -88,6 +88,7 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     lon0 = math.radians(grid_spec.lon_min_deg)
     dlon = math.radians(grid_spec.resolution_deg)
     n_circle = grid_spec.n_lon_circle
+    cap = grid.cap(r0, r1)  # satellites whose footprint cannot reach it are skipped
     for i0 in range(0, n_samples, block):
         nb = min(block, n_samples - i0)
         t = (i0 + np.arange(nb)) * step_s
@@ -99,7 +100,7 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
         else:
             pos, vel = j2.propagate_to_ecef(elements, t, theta0_rad, out=out), None
         kernel.run_band(state, pos, i0, geo, lon0, dlon, n_circle, el_min, eta_max, range_max,
-                        refine, vel, step_s, n_win=n_lon)
+                        refine, vel, step_s, n_win=n_lon, cap=cap)
     kernel.close_band(state, n_steps)
     return state
 

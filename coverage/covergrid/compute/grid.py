@@ -256,6 +256,40 @@ class Grid:
         mask = self.cell_mask
         return self.spec.n_cells if mask is None else int(mask.sum())
 
+    def cap(self, r0: int, r1: int) -> tuple[float, float, float, float]:
+        """A spherical cap holding every cell of rows [r0, r1): the geocentric unit vector of
+        its centre and its angular radius [rad] (4.0, more than pi, when the columns go all
+        round: no useful cap).
+
+        The farthest point of the cells from the centre lies on their boundary (a distance
+        on the sphere has no interior maximum short of the antipode), so the radius is the
+        largest angle to the boundary sampled at a quarter cell, plus that spacing (a
+        conservative margin).
+        """
+        s = self.spec
+        if self.spec.full_circle:
+            return (1.0, 0.0, 0.0, 4.0)
+        lat = np.radians(self.lat_edges_deg[[r0, r1]])
+        lon = np.radians(self.lon_edges_deg[[0, -1]])
+        step = math.radians(s.resolution_deg) / 4.0
+        n_lat = max(2, int(math.ceil((lat[1] - lat[0]) / step)) + 1)
+        n_lon = max(2, int(math.ceil((lon[1] - lon[0]) / step)) + 1)
+        la = np.linspace(lat[0], lat[1], n_lat)
+        lo = np.linspace(lon[0], lon[1], n_lon)
+        pts_lat = np.concatenate([la, la, np.full(n_lon, lat[0]), np.full(n_lon, lat[1])])
+        pts_lon = np.concatenate([np.full(n_lat, lon[0]), np.full(n_lat, lon[1]), lo, lo])
+        # geocentric directions of points on the ellipsoid (geodetic latitude in)
+        psi = np.arctan((1.0 - WGS84_E2) * np.tan(pts_lat))
+        u = np.stack([np.cos(psi) * np.cos(pts_lon), np.cos(psi) * np.sin(pts_lon),
+                      np.sin(psi)], axis=-1)
+        centre = u.mean(axis=0)
+        norm = float(np.linalg.norm(centre))
+        if norm < 1e-6:
+            return (1.0, 0.0, 0.0, 4.0)
+        centre /= norm
+        radius = float(np.max(np.arccos(np.clip(u @ centre, -1.0, 1.0)))) + step
+        return (float(centre[0]), float(centre[1]), float(centre[2]), radius)
+
     @cached_property
     def row_geometry(self) -> dict[str, np.ndarray]:
         """Per-row constants used by the kernel, each (n_lat,).
