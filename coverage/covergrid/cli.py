@@ -254,13 +254,26 @@ def _cmd_run(args: argparse.Namespace) -> int:
     result = run_study(study, args.out, progress=not args.quiet, scheduler=args.scheduler,
                        maps=not args.no_maps, force=args.force)
     verdict = result.summary.get("requirement")
+    on_targets = (result.summary.get("targets") or {}).get("requirement")
     if not args.quiet:
         print(f"covergrid: wrote {len(result.files)} files to {result.out_dir}")
         if verdict is not None:
             print(_verdict_text(verdict))
-    if verdict is not None and not verdict["met"]:
+        if on_targets is not None:
+            print(_target_verdict_text(on_targets))
+    if result.requirement_met is False:
         return EXIT_REQUIREMENT_NOT_MET
     return EXIT_OK
+
+
+def _target_verdict_text(v: dict) -> str:
+    sense = "<=" if v["sense"] == "at_most" else ">="
+    units = f" {v['units']}" if v["units"] not in ("", "1") else ""
+    state = "MET" if v["met"] else "NOT MET"
+    return (f"target requirement {v['metric']} {sense} {v['threshold']:g}{units} at "
+            f"{100 * v['share']:g} % of the targets: {state} (achieved {v['achieved']:g}"
+            f"{units}, margin {v['margin']:+g}{units}; {100 * v['share_met']:.1f} % of the "
+            "targets meet it)")
 
 
 def _verdict_text(v: dict) -> str:
@@ -382,14 +395,20 @@ def _estimate_text(study, est: dict, trades: dict) -> str:
         f"(limits {est['limits']['max_samples']:,} and "
         f"{est['limits']['max_satellite_samples']:,})",
         f"  grid            {study.grid.resolution_deg:g} deg, latitudes "
-        f"{study.grid.lat_min_deg:g} to {study.grid.lat_max_deg:g} deg -> "
-        f"{est['grid_rows']} x {est['grid_columns']} = {est['cells']:,} cells",
+        f"{study.grid.lat_min_deg:g} to {study.grid.lat_max_deg:g} deg"
+        + (f", longitudes {study.grid.lon_min_deg:g} to {study.grid.lon_max_deg:g} deg"
+           if (study.grid.lon_min_deg, study.grid.lon_max_deg) != (-180.0, 180.0) else "")
+        + (f", region {study.region.title()}" if study.region is not None else "")
+        + f" -> {est['grid_rows']} x {est['grid_columns']} = {est['cells']:,} cells"
+        + (" computed in the region's window" if study.region is not None else ""),
         f"  work            about {est['visits']:.3g} satellite-sample-cell visibilities in "
         f"{est['bands']} latitude bands, {est['tasks_at_once']} at once",
         f"  time            about {format_seconds(est['seconds'])} (computing "
         f"{format_seconds(est['compute_s'])}, figures {format_seconds(est['figures_s'])})",
         f"  memory          {memory(est)}",
     ]
+    if study.targets is not None:
+        lines.append(f"  targets         {len(study.targets.entries):,} point targets")
     if study.requirement is not None:
         r = study.requirement
         sense = ("at most", r.at_most) if r.at_most is not None else ("at least", r.at_least)

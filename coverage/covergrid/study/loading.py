@@ -313,4 +313,4 @@ def with_overrides(study: Study, overrides: dict[str, Any], source: str) -> Stud
                 node[part] = {}
             node = node[part]
         node[key] = value
-    return parse_study(data, source=source, base_dir=study.base_dir)
+    return parse_study(data, source=source)  # its files are inlined: no folder needed

@@ -10,11 +10,10 @@ them, once, into what the computation takes.
 from __future__ import annotations
 
 import datetime as _dt
-from pathlib import Path
 from typing import Any
 
 import yaml
-from pydantic import Field, PrivateAttr, ValidationInfo, field_validator, model_validator
+from pydantic import Field, field_validator, model_validator
 
 from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError
@@ -77,18 +76,6 @@ class Study(SectionModel):
         "samples (true), or at the sample (false: pure sampled values).")
 
     _study_text = field_validator("study", mode="before")(text_id)
-    _base_dir: Path | None = PrivateAttr(None)
-
-    @model_validator(mode="after")
-    def _remember_base_dir(self, info: ValidationInfo) -> Study:
-        ctx = info.context if isinstance(info.context, dict) else {}
-        self._base_dir = ctx.get("base_dir")
-        return self
-
-    @property
-    def base_dir(self) -> Path | None:
-        """Folder the study's files are relative to (None: the current folder)."""
-        return self._base_dir
 
     @field_validator("study")
     @classmethod
@@ -199,8 +186,22 @@ class Study(SectionModel):
         return sum(g.count for g in self.constellation)
 
     def resolved_dict(self) -> dict:
-        """The study with every default filled in, as plain data."""
-        return self.model_dump(mode="json")
+        """The study with every default filled in, as plain data; the files it names are
+        inlined (the region's areas as one GeoJSON geometry, the targets as sites), so the
+        record stands alone wherever it is read."""
+        data = self.model_dump(mode="json")
+        if self.region is not None and self.region.areas_wkb is not None:
+            import json
+
+            import shapely
+
+            geometry = shapely.from_wkb(self.region.areas_wkb)
+            data["region"]["geojson"] = [json.loads(shapely.to_geojson(geometry))]
+        if self.targets is not None and self.targets.file is not None:
+            data["targets"]["file"] = None
+            data["targets"]["sites"] = [t.model_dump(mode="json")
+                                        for t in self.targets.entries]
+        return data
 
     def dump_resolved_yaml(self) -> str:
         """The resolved study as YAML text (the provenance record written beside outputs)."""
