@@ -131,7 +131,7 @@ def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = Tr
     if maps:
         from covergrid.pipeline.figures import write_figures
 
-        files += write_figures(study, ds, folder)
+        files += write_figures(study, ds, folder, summary.get("requirement"))
     return files, summary
 
 
