@@ -333,15 +333,17 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
                              edgecolors="face", linewidth=0, zorder=1, rasterized=True)
         key = None
         if mark is not None and mark.fails is not None and mark.fails.shape == values.shape:
-            marks.hatch_cells(ax, lon_edges, lat_edges, mark.fails, transform=plate)
+            hatched = marks.hatch_cells(ax, lon_edges, lat_edges, mark.fails, transform=plate)
             threshold_text = None
-            if threshold is not None:
+            if threshold is not None and scale.decision_level is not None:
                 marks.threshold_contour(ax, np.asarray(ds["lon"].values, dtype=float),
                                         np.asarray(ds["lat"].values, dtype=float),
                                         shown.filled(np.nan), scale.decision_level,
                                         transform=plate)
                 threshold_text = format_values([mark.threshold], unit)[0]
-            key = marks.key_handles(mark, threshold_text=threshold_text)
+            if hatched is not None or threshold_text is not None:
+                key = marks.key_handles(mark, threshold_text=threshold_text,
+                                        hatched=hatched is not None)
         if own_figure:
             # Put the colour bar beside the map as drawn (narrow projections leave room).
             ax.apply_aspect()

@@ -222,7 +222,7 @@ def threshold_contour(ax, lon_centres, lat_centres, values, level: float, *, tra
 
 def hatch_rows(ax, lat_edges, fails) -> list:
     """Hatch the latitude rows of a profile panel that hold a failing cell."""
-    rows = np.asarray(fails, dtype=bool).any(axis=1)
+    rows = np.asarray(np.asarray(fails, dtype=bool).any(axis=1))
     spans = []
     for start, stop in _runs(rows):
         span = ax.axhspan(float(lat_edges[start]), float(lat_edges[stop]), facecolor="none",
@@ -233,16 +233,19 @@ def hatch_rows(ax, lat_edges, fails) -> list:
 
 
 def key_handles(mark: RequirementMark, *, threshold_text: str | None, line: str = "contour",
-                hatched: str = "requirement not met") -> list:
-    """Legend entries explaining the marks: the hatching and, if drawn, the threshold."""
+                hatched: bool | str = True) -> list:
+    """Legend entries explaining the marks drawn: the hatching (``hatched``: its label, or
+    True for "requirement not met", False when nothing is hatched) and the threshold."""
     import matplotlib.lines as mlines
     import matplotlib.patches as mpatches
 
-    handles = [mpatches.Patch(facecolor="none", edgecolor=_HATCH_COLOUR, hatch=HATCH,
-                              linewidth=0.0, label=hatched)]
+    handles: list = []
     if threshold_text is not None:
-        label = f"requirement threshold {threshold_text}"
-        handles.insert(0, mlines.Line2D([], [], color=_CONTOUR_COLOUR, linewidth=1.1,
-                                        linestyle="-" if line == "contour" else "--",
-                                        label=label))
+        handles.append(mlines.Line2D([], [], color=_CONTOUR_COLOUR, linewidth=1.1,
+                                     linestyle="-" if line == "contour" else "--",
+                                     label=f"requirement threshold {threshold_text}"))
+    if hatched:
+        label = hatched if isinstance(hatched, str) else "requirement not met"
+        handles.append(mpatches.Patch(facecolor="none", edgecolor=_HATCH_COLOUR, hatch=HATCH,
+                                      linewidth=0.0, label=label))
     return handles

@@ -125,8 +125,7 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
     tick = 30.0 if lat_hi - lat_lo > 90 else 15.0 if lat_hi - lat_lo > 40 else 10.0
     lat_ticks = np.arange(np.ceil(lat_lo / tick) * tick, lat_hi + tick / 2, tick)
     width, height = _figsize(len(metrics))
-    key = (marks.key_handles(mark, threshold_text=None, hatched=_ROWS_HATCHED)
-           if mark is not None else None)
+    any_hatched, threshold_line = False, None
     with style.report_style():
         fig = plt.figure(figsize=(width, height))
         left = 0.7 / width
@@ -142,14 +141,13 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
             colour = style.line_colour(metric, attrs.get("units"))
             lat = prof["lat_deg"]
             if mark is not None and mark.fails is not None:
-                marks.hatch_rows(ax, lat_edges, mark.fails)
+                any_hatched = bool(marks.hatch_rows(ax, lat_edges, mark.fails)) or any_hatched
             if mark is not None and mark.is_on(metric, fold):
                 threshold_text = format_values([mark.threshold], unit)[0]
                 line = ax.axvline(mark.threshold * unit.factor, color="black",
                                   linestyle="--", linewidth=1.0, zorder=3)
                 line.set_gid("covergrid-requirement-threshold")
-                key = marks.key_handles(mark, threshold_text=threshold_text, line="dashed",
-                                        hatched=_ROWS_HATCHED)
+                threshold_line = threshold_text
             ax.fill_betweenx(lat, prof["min"] * unit.factor, prof["max"] * unit.factor,
                              color=colour, alpha=0.25, linewidth=0, label="min to max")
             ax.plot(prof["mean"] * unit.factor, lat, color=colour, label="area-weighted mean")
@@ -165,10 +163,11 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
         axes[0].legend(loc="lower left", fontsize=6.5, frameon=False)
         fig.suptitle(style.figure_title(title or "Latitude profile", study),
                      y=1.0 - 0.15 / height, va="top")
+        key = None
         if mark is not None:
             caption = "\n".join(c for c in (caption, mark.caption()) if c)
-            if mark.fails is None:
-                key = None
+            key = marks.key_handles(mark, threshold_text=threshold_line, line="dashed",
+                                    hatched=_ROWS_HATCHED if any_hatched else False) or None
         style.add_caption(fig, caption, key=key)
     return axes
 

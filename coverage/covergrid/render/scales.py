@@ -212,7 +212,8 @@ def _two_tone(metric, units, data, threshold, sense, integer) -> Scale:
     listed = mcolors.ListedColormap(colours).with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
     if extend == "max":
         listed = listed.with_extremes(over=colours[-1])
-    norm = mcolors.BoundaryNorm(edges, ncolors=len(colours), extend=extend)
+    norm = mcolors.BoundaryNorm(edges, ncolors=len(colours),
+                                extend="max" if extend == "max" else "neither")
     if integer:
         ticks = ([float(v) for v in (edges[:-1] + 0.5)] if edges.size - 1 <= MAX_DISCRETE_LEVELS
                  else [float(e) for e in edges])

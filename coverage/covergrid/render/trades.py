@@ -310,7 +310,7 @@ def total_ticks(ax, totals) -> None:
     if values.size == 0:
         return
     if values.size <= 12:
-        ax.xaxis.set_major_locator(FixedLocator(values))
+        ax.xaxis.set_major_locator(FixedLocator(values.tolist()))
     else:
         ax.xaxis.set_major_locator(MaxNLocator(integer=True))
     pad = max(1.0, 0.05 * float(values[-1] - values[0]))
