@@ -289,3 +289,17 @@ def test_nfold_requirement_uses_its_fold(tmp_path, capsys):
     summary = json.loads((tmp_path / "o" / "tiny-ring" / "summary.json").read_text())
     v = summary["requirement"]
     assert (v["metric"], v["k"], v["met"], v["achieved"]) == ("nfold_fraction", 6, False, 0.0)
+
+
+def test_quiet_still_prints_the_verdict_line_with_units(tmp_path, capsys):
+    study = write_study(tmp_path, TINY_STUDY + "requirement: {metric: max_gap, at_most: 3600, "
+                        "area_fraction: 0.5}\n")
+    status = cli.main(["run", str(study), "--out", str(tmp_path / "o"), "--no-maps",
+                       "--no-report", "--quiet"])
+    lines = capsys.readouterr().out.splitlines()
+    assert len(lines) == 1 and lines[0].startswith("requirement max_gap at most 3600.0 s over "
+                                                   "50 % of the area: ")
+    # threshold, achieved and margin: seconds, one decimal each, the margin signed
+    assert re.search(r"\(achieved \d+\.\d s, margin [+-]\d+\.\d s; \d+\.\d % of the area",
+                     lines[0]), lines[0]
+    assert status == (0 if "NOT MET" not in lines[0] else 1)

@@ -161,7 +161,7 @@ def _fold(long_name: str, k: int | None) -> str:
 
 def requirement_text(req: Mapping[str, Any], *, long_name: str | None = None,
                      units: str | None = None, kind: str | None = None,
-                     stored_units: bool = False) -> str:
+                     stored_units: bool = False, threshold_text: str | None = None) -> str:
     """The requirement in words: ``maximum gap at most 45.0 min over 95 % of the area``.
 
     Parameters
@@ -173,10 +173,12 @@ def requirement_text(req: Mapping[str, Any], *, long_name: str | None = None,
         The metric's long name, stored units and kind (from the metric registry).
     stored_units : bool
         Seconds stay seconds (the command line); otherwise the display unit of the threshold.
+    threshold_text : str, optional
+        The threshold already formatted (with the decimals of the numbers beside it).
     """
     sense, threshold = _sense_threshold(req)
     unit = _unit(req, units, kind, [threshold], stored_units)
-    (value,) = format_values([threshold], unit)
+    value = threshold_text or format_values([threshold], unit)[0]
     name = _fold(long_name or str(req["metric"]).replace("_", " "), req.get("k"))
     words = "at most" if sense == "at_most" else "at least"
     return f"{name} {words} {value} over {percent(req.get('area_fraction', 1.0))} of the area"
@@ -201,11 +203,11 @@ def verdict_text(verdict: Mapping[str, Any], *, long_name: str | None = None,
     units = verdict.get("units")
     values = [verdict["threshold"], verdict["achieved"], verdict["margin"]]
     unit = _unit(verdict, units, kind, values, stored_units)
-    _, achieved, margin = format_values(values, unit, margin_at=2, signed=[2])
+    threshold, achieved, margin = format_values(values, unit, margin_at=2, signed=[2])
     (share,) = format_values([verdict["area_fraction_met"]], DisplayUnit("%", 100.0))
     state = "MET" if verdict["met"] else "NOT MET"
     head = requirement_text(verdict, long_name=long_name, units=units, kind=kind,
-                            stored_units=stored_units)
+                            stored_units=stored_units, threshold_text=threshold)
     return (f"{head}: {state} (achieved {achieved}, margin {margin}; "
             f"{share} of the area meets it)")
 

@@ -34,7 +34,7 @@ __all__ = ["DISCRETE_RANGE", "MAX_DISCRETE_LEVELS", "Scale", "colour_scale"]
 MAX_DISCRETE_LEVELS = 16
 #: The part of a family colour map that discrete colours are taken from (its dark end is
 #: left out: at magma's 0.0 a cell is black).
-DISCRETE_RANGE = (0.30, 0.97)
+DISCRETE_RANGE = (0.35, 0.97)
 #: Parts of the two colour maps of a two-tone scale: near the threshold (light) to far from
 #: it (dark). Blues for met, oranges to reds for not met (matplotlib's ``Blues``, ``OrRd``).
 MET_RANGE = (0.35, 0.90)
