@@ -155,7 +155,7 @@ def test_run_end_to_end_writes_every_output(tmp_path, capsys):
     assert cli.main(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]) == 0
     folder = out / "tiny-ring"
     assert sorted(p.name for p in folder.iterdir()) == [
-        "coverage.nc", "study.resolved.yaml", "summary.csv", "summary.json"]
+        "coverage.nc", "report.html", "study.resolved.yaml", "summary.csv", "summary.json"]
     with xr.open_dataset(folder / "coverage.nc") as ds:
         assert set(METRICS) <= set(ds.data_vars)
         assert ds.attrs["Conventions"] == "CF-1.8"

@@ -336,11 +336,12 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
             hatched = marks.hatch_cells(ax, lon_edges, lat_edges, mark.fails, transform=plate)
             threshold_text = None
             if threshold is not None and scale.decision_level is not None:
-                marks.threshold_contour(ax, np.asarray(ds["lon"].values, dtype=float),
-                                        np.asarray(ds["lat"].values, dtype=float),
-                                        shown.filled(np.nan), scale.decision_level,
-                                        transform=plate)
-                threshold_text = format_values([mark.threshold], unit)[0]
+                contour = marks.threshold_contour(
+                    ax, np.asarray(ds["lon"].values, dtype=float),
+                    np.asarray(ds["lat"].values, dtype=float), shown.filled(np.nan),
+                    scale.decision_level, transform=plate)
+                if contour is not None:  # the key names only what is drawn
+                    threshold_text = format_values([mark.threshold], unit)[0]
             if hatched is not None or threshold_text is not None:
                 key = marks.key_handles(mark, threshold_text=threshold_text,
                                         hatched=hatched is not None)
