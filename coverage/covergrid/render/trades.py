@@ -485,7 +485,7 @@ def plot_pareto_front(table, metric: str, *, better: str | None = None,
 def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = None,
                        by: str = "altitude_km", better: str | None = None,
                        units: str | None = None, requirement: float | None = None,
-                       long_name: str | None = None) -> list[Path]:
+                       long_name: str | None = None, study: str | None = None) -> list[Path]:
     """Write the three trade figures (PNG 200 dpi and vector PDF) into ``out_dir``.
 
     Files: ``trade_metric_vs_total``, ``trade_min_total`` (only when the table has ``meets``)
@@ -505,6 +505,8 @@ def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = Non
         As for :func:`plot_metric_vs_total`.
     long_name : str, optional
         Axis label of the metric (default: its registry long name, or the column name).
+    study : str, optional
+        The study's name, for the titles.
 
     Returns
     -------
@@ -530,6 +532,7 @@ def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = Non
             fig, ax = _new_figure()
         try:
             draw(ax)
+            ax.set_title(style.figure_title(ax.get_title(), study))
             style.add_caption(fig, caption)
             written += style.save_png_and_pdf(fig, out, stem)
         finally:
