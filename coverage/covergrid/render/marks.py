@@ -181,10 +181,31 @@ def hatch_cells(ax, lon_edges, lat_edges, fails, *, transform=None):
     if not boxes:
         return None
     kw = {} if transform is None else {"transform": transform}
-    hatch = PolyCollection(boxes, facecolors="none", edgecolors=_HATCH_COLOUR, linewidths=0.0,
-                           hatch=HATCH, zorder=2, **kw)
-    hatch.set_gid("covergrid-requirement-hatch")
-    ax.add_collection(hatch)
+    projection = getattr(ax, "projection", None)
+    hidden: list = []
+    if transform is not None and projection is not None:
+        # project the vertices at once (numpy) instead of path by path through cartopy's
+        # geometry projection, which took about a second for the rectangles of a 1 deg map;
+        # a run of cells never crosses the antimeridian, so its points project as they are.
+        # Rectangles reaching out of view (the far side of an orthographic globe) go the
+        # slow way, which clips them.
+        points = np.concatenate(boxes)
+        xy = projection.transform_points(transform, points[:, 0], points[:, 1])[:, :2]
+        sizes = np.cumsum([len(b) for b in boxes])[:-1]
+        parts = np.split(xy, sizes)
+        seen = [bool(np.all(np.isfinite(part))) for part in parts]
+        hidden = [box for box, ok in zip(boxes, seen, strict=True) if not ok]
+        boxes = [part for part, ok in zip(parts, seen, strict=True) if ok]
+        kw = {"transform": ax.transData}
+    hatch = None
+    for polygons, where in ((boxes, kw), (hidden, {"transform": transform})):
+        if not polygons:
+            continue
+        part = PolyCollection(polygons, facecolors="none", edgecolors=_HATCH_COLOUR,
+                              linewidths=0.0, hatch=HATCH, zorder=2, **where)
+        part.set_gid("covergrid-requirement-hatch")
+        ax.add_collection(part)
+        hatch = hatch or part
     return hatch
 
 
