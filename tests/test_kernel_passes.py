@@ -90,8 +90,8 @@ def _check_against_references(elements, epoch, span_s, step_s, grid, sensor):
     if bad.size:
         lat = ours.lat.values[bad[:, 0]]
         lon = ours.lon.values[bad[:, 1]]
-        for (i, j), (passes, gaps, handovers) in zip(bad, _fine_events(elements, epoch, span_s, lat, lon,
-                                                            sensor), strict=True):
+        fine = _fine_events(elements, epoch, span_s, lat, lon, sensor)
+        for (i, j), (passes, gaps, handovers) in zip(bad, fine, strict=True):
             cell = ours.isel(lat=i, lon=j)
             where = (float(cell.lat), float(cell.lon), step_s)
             # the disagreement is the 1 s sampling's blind spot: a sub-second event (or one
