@@ -185,7 +185,7 @@ def _events(elements: Any, theta0: float, n_steps: int, step_s: float, targets: 
     order = np.argsort(psi, kind="stable")
     n_sat = len(elements.a_km)
     el_min, eta_max, range_max = sensor.kernel_args()
-    chunks = []
+    chunks: list[dict[str, Any]] = []
     for c0 in range(0, len(order), _SITES_PER_CHUNK):
         idx = order[c0: c0 + _SITES_PER_CHUNK]
         u = pos_t[idx] / np.linalg.norm(pos_t[idx], axis=1)[:, None]

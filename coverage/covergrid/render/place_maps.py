@@ -57,7 +57,7 @@ def plot_target_map(lat_deg: np.ndarray, lon_deg: np.ndarray, values: np.ndarray
               max(lat.min() - m_lat, -90.0), min(lat.max() + m_lat, 90.0))
     with style.report_style():
         fig = plt.figure(figsize=(8.0, 6.0))
-        ax = fig.add_axes((0.06, 0.19, 0.76, 0.72), projection=ccrs.PlateCarree())
+        ax: Any = fig.add_axes((0.06, 0.19, 0.76, 0.72), projection=ccrs.PlateCarree())
         prepare_map_axes(ax, None)  # coastlines and gridlines, our own extent
         ax.set_extent(extent, crs=ccrs.PlateCarree())
         draw_region_outline(ax, outline)
@@ -80,9 +80,11 @@ def plot_target_map(lat_deg: np.ndarray, lon_deg: np.ndarray, values: np.ndarray
 
 
 def save_region_maps(ds: Any, metrics: list[str], out_dir: Path, *, caption: str | None,
-                     k: int | None = None, outline_wkb: bytes | None = None) -> list[Path]:
+                     k: int | None = None, outline_wkb: bytes | None = None,
+                     requirement: Any = None, study: str | None = None) -> list[Path]:
     """Maps of a regional grid: each metric on a plate carree map of the grid's window
-    (cells outside the region are NaN and not drawn), with the region's outline; files
+    (cells outside the region are NaN and not drawn), with the region's outline and the
+    requirement's marks (as :func:`covergrid.render.maps.plot_metric_map`); files
     ``out_dir/maps/<metric>[_k<k>].png`` and ``.pdf`` as
     :func:`covergrid.render.maps.save_metric_maps` names them."""
     import cartopy.crs as ccrs
@@ -105,7 +107,8 @@ def save_region_maps(ds: Any, metrics: list[str], out_dir: Path, *, caption: str
             if "k" in ds[metric].dims else [None]
         for fold in folds:
             crs = ccrs.PlateCarree(central_longitude=centre)
-            mesh = plot_metric_map(ds, metric, projection=crs, caption=caption, k=fold)
+            mesh = plot_metric_map(ds, metric, projection=crs, caption=caption, k=fold,
+                                   requirement=requirement, study=study)
             ax = mesh.axes
             ax.set_extent((west - m_lon, east + m_lon, max(south - m_lat, -90.0),
                            min(north + m_lat, 90.0)), crs=ccrs.PlateCarree())
