@@ -275,13 +275,14 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
 
 def _target_verdict_text(v: dict) -> str:
-    sense = "<=" if v["sense"] == "at_most" else ">="
-    units = f" {v['units']}" if v["units"] not in ("", "1") else ""
+    """The target verdict line, numbers as the grid's verdict line shows them."""
+    sense = "at most" if v["sense"] == "at_most" else "at least"
     state = "MET" if v["met"] else "NOT MET"
-    return (f"target requirement {v['metric']} {sense} {v['threshold']:g}{units} at "
-            f"{100 * v['share']:g} % of the targets: {state} (achieved {v['achieved']:g}"
-            f"{units}, margin {v['margin']:+g}{units}; {100 * v['share_met']:.1f} % of the "
-            "targets meet it)")
+    q = _quantity
+    return (f"target requirement {v['metric']} {sense} {q(v['threshold'], v['metric'])} at "
+            f"{100 * v['share']:g} % of the targets: {state} (achieved "
+            f"{q(v['achieved'], v['metric'])}, margin {q(v['margin'], v['metric'], signed=True)}"
+            f"; {100 * v['share_met']:.1f} % of the targets meet it)")
 
 
 def _verdict_text(v: dict) -> str:
