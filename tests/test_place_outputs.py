@@ -90,3 +90,14 @@ def test_trade_rows_weight_the_region(study_path):
     assert row["max_gap_mean"] == pytest.approx(want)
     assert result.requirement_met is True  # the target requirement (no grid requirement)
     assert resolve(load_study(study_path)).targets.names == ("Mole-1", "Quay-A", "Quay-B")
+
+
+def test_requirement_marks_leave_the_outside_of_a_region_alone(study_path):
+    from covergrid.compute.requirement import Requirement
+    from covergrid.render.marks import requirement_mark
+
+    ds = run_study(load_study(study_path)).dataset
+    req = Requirement(metric="max_gap", at_most=1.0)  # failed by every cell in the region
+    fails = requirement_mark(req, ds).fails
+    inside = ds["in_region"].values == 1
+    assert fails[inside].all() and not fails[~inside].any()
