@@ -124,6 +124,11 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
     no_limits = (NO_LIMIT_KM, 0.0, NO_LIMIT_KM, 0.0, NO_LIMIT_KM, 0.0)
     several = cos_eta > -1.5 or range_lim > 0.0  # more than the elevation limit
     cap_x, cap_y, cap_z, cap_r = cap
+    masked = False  # any cell outside the region (queue head -1)? then cells are checked
+    for c in range(heads.shape[0]):
+        if heads[c] < 0.0:
+            masked = True
+            break
     for b in range(n_block):
         i = i0 + b
         timed = refine and i > 0
@@ -266,12 +271,12 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                     base = r * n_win
                     geo = (px, py, pvx, pvy, x, y, vx, vy, x0, rate0, x1, rate1)
                     if timed:
-                        timed_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, n_win, lon0,
-                                  dlon, cos_lon, sin_lon, geo, sat, (lim0, lim1), several, dt,
-                                  t_sample - 1.0, kmax)
+                        timed_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, n_win, masked,
+                                  lon0, dlon, cos_lon, sin_lon, geo, sat, (lim0, lim1), several,
+                                  dt, t_sample - 1.0, kmax)
                     elif cs != ps or cl != pl:
                         changed_cells(acc, heads, events, base, cs, cl, ps, pl, n_lon, n_win,
-                                      cos_lon, sin_lon, geo, dt, t_sample, False, kmax)
+                                      masked, cos_lon, sin_lon, geo, dt, t_sample, False, kmax)
             prev_rows[s, 0] = c_lo
             prev_rows[s, 1] = c_hi
             if lo < hi:
