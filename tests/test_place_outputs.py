@@ -76,6 +76,8 @@ def test_run_writes_every_place_output(study_path, tmp_path):
     ds.close()
     for stem in ("max_gap", "targets_max_gap", "targets_pass_count"):
         assert (folder / "maps" / f"{stem}.png").exists()
+    html = (folder / "report.html").read_text()
+    assert "Point targets" in html and "Quay-B" in html and "Target requirement" in html
     report = compliance_report(folder / "coverage.nc")
     assert report["high_count"] == 0, report["high_priorities"]
 

@@ -165,9 +165,17 @@ def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = Tr
     if report:
         from covergrid.pipeline import report as run_report
 
+        tables: list[dict] = []
+        notes: list[str] = []
+        if targets is not None and study.targets is not None:
+            from covergrid.pipeline.target_outputs import report_parts
+
+            table, notes = report_parts(study, targets, summary)
+            tables.append(table)
         context = run_report.report_context(
             study, "run", files, folder, summary=summary,
-            verdict=run_report.run_verdict(summary.get("requirement")))
+            verdict=run_report.run_verdict(summary.get("requirement")), tables=tables,
+            notes=notes)
         files.append(run_report.write_report(folder, context))
     return files, summary
 

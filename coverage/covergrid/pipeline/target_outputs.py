@@ -121,3 +121,59 @@ def write_target_maps(study: ResolvedStudy, ds: Any, result: dict, folder: Path)
                                  result["stats"][m], m, units, long_name, folder / "maps",
                                  f"targets_{m}", caption=caption, outline=outline)
     return files
+
+
+#: Targets listed in report.html (targets.csv holds them all).
+REPORT_TARGETS_SHOWN = 40
+
+
+def report_parts(study: ResolvedStudy, result: dict,
+                 summary: dict) -> tuple[dict[str, Any], list[str]]:
+    """The report's table of targets (those failing the target requirement first, at most
+    :data:`REPORT_TARGETS_SHOWN`) and its note (the target verdict in words)."""
+    from covergrid.compute.metrics import METRICS
+    from covergrid.compute.quantities import format_values, unit_for
+    from covergrid.compute.requirement import meets_threshold
+
+    t = study.targets
+    assert t is not None
+    stats = result["stats"]
+    order = list(range(len(t)))
+    r = study.target_requirement
+    fails = np.zeros(len(t), bool)
+    if r is not None:
+        sense = "at_most" if r.at_most is not None else "at_least"
+        threshold = float(r.at_most if r.at_most is not None else r.at_least)  # type: ignore[arg-type]
+        fails = ~meets_threshold(np.asarray(stats[r.metric], float), sense, threshold)
+        order.sort(key=lambda k: not fails[k])
+    shown = order[:REPORT_TARGETS_SHOWN]
+    columns = ["target", "lat [deg]", "lon [deg]"]
+    cells: list[list[str]] = [[t.names[k], f"{t.lat_deg[k]:g}", f"{t.lon_deg[k]:g}"]
+                              for k in shown]
+    for m in TARGET_METRICS:
+        info = METRICS.get(m)
+        values = [float(stats[m][k]) for k in shown]
+        unit = unit_for(m, TARGET_METRICS[m][0], max((abs(v) for v in values), default=0.0),
+                        info.kind if info is not None else None)
+        texts = format_values(values, unit, with_unit=False)
+        columns.append(m.replace("_", " ") + (f" [{unit.label}]" if unit.label else ""))
+        for row, text in zip(cells, texts, strict=True):
+            row.append(text)
+    if r is not None:
+        columns.append("meets")
+        for row, k in zip(cells, shown, strict=True):
+            row.append("no" if fails[k] else "yes")
+    table = {"title": "Point targets", "columns": columns, "rows": cells,
+             "note": f"{len(shown)} of {len(t)} targets shown"
+                     + (", those failing the target requirement first" if r is not None
+                        else "") + "; every target is in targets.csv, every pass in passes.csv."}
+    notes = []
+    verdict = (summary.get("targets") or {}).get("requirement")
+    if verdict is not None:
+        state = "met" if verdict["met"] else "NOT met"
+        notes.append(f"Target requirement {verdict['metric'].replace('_', ' ')} "
+                     f"{'at most' if verdict['sense'] == 'at_most' else 'at least'} "
+                     f"{verdict['threshold']:g} {verdict['units']} at "
+                     f"{100 * verdict['share']:g} % of the targets: {state} "
+                     f"({100 * verdict['share_met']:.1f} % of the targets meet it).")
+    return table, notes
