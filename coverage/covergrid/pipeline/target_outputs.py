@@ -114,12 +114,23 @@ def write_target_maps(study: ResolvedStudy, ds: Any, result: dict, folder: Path)
     outline = None if region is None else region.outline()
     caption = (f"Study {study.name}: {len(t)} point targets, {study.n_satellites} satellites, "
                f"{study.duration_s / 3600:g} h from {study.epoch_iso}.")
+    r = study.target_requirement
     files: list[Path] = []
     for m in TARGET_MAP_METRICS:
         units, long_name = TARGET_METRICS[m]
+        fails = None
+        if r is not None and r.metric == m:
+            from covergrid.compute.requirement import meets_threshold
+
+            sense = "at_most" if r.at_most is not None else "at_least"
+            limit = r.at_most if r.at_most is not None else r.at_least
+            assert limit is not None
+            fails = ~meets_threshold(np.asarray(result["stats"][m], float), sense,
+                                     float(limit))
         files += plot_target_map(np.asarray(t.lat_deg), np.asarray(t.lon_deg),
                                  result["stats"][m], m, units, long_name, folder / "maps",
-                                 f"targets_{m}", caption=caption, outline=outline)
+                                 f"targets_{m}", caption=caption, outline=outline,
+                                 fails=fails, study=study.name)
     return files
 
 
@@ -143,7 +154,9 @@ def report_parts(study: ResolvedStudy, result: dict,
     fails = np.zeros(len(t), bool)
     if r is not None:
         sense = "at_most" if r.at_most is not None else "at_least"
-        threshold = float(r.at_most if r.at_most is not None else r.at_least)  # type: ignore[arg-type]
+        limit = r.at_most if r.at_most is not None else r.at_least
+        assert limit is not None
+        threshold = float(limit)
         fails = ~meets_threshold(np.asarray(stats[r.metric], float), sense, threshold)
         order.sort(key=lambda k: not fails[k])
     shown = order[:REPORT_TARGETS_SHOWN]

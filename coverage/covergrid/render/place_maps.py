@@ -37,8 +37,10 @@ def draw_region_outline(ax: Any, outline: Any) -> None:
 
 def plot_target_map(lat_deg: np.ndarray, lon_deg: np.ndarray, values: np.ndarray, metric: str,
                     units: str, long_name: str, folder: Path, stem: str, *,
-                    caption: str | None = None, outline: Any = None) -> list[Path]:
-    """Draw the targets coloured by ``values`` and save ``folder/<stem>.png`` and ``.pdf``."""
+                    caption: str | None = None, outline: Any = None,
+                    fails: np.ndarray | None = None, study: str | None = None) -> list[Path]:
+    """Draw the targets coloured by ``values`` and save ``folder/<stem>.png`` and ``.pdf``;
+    targets flagged in ``fails`` (a requirement on this metric not met) are ringed."""
     import cartopy.crs as ccrs
     import matplotlib.pyplot as plt
 
@@ -64,6 +66,12 @@ def plot_target_map(lat_deg: np.ndarray, lon_deg: np.ndarray, values: np.ndarray
         sc = ax.scatter(lon, lat, c=shown, cmap=style.colormap_for(metric, units), s=36,
                         edgecolors="black", linewidths=0.4, transform=ccrs.PlateCarree(),
                         zorder=5)
+        if fails is not None and np.any(fails):
+            bad = np.asarray(fails, bool)
+            ax.scatter(lon[bad], lat[bad], s=140, facecolors="none", edgecolors="#b2182b",
+                       linewidths=1.6, transform=ccrs.PlateCarree(), zorder=6,
+                       label="target requirement not met")
+            ax.legend(loc="lower left", fontsize=7, frameon=True)
         ax.apply_aspect()
         box = ax.get_position()
         cax = fig.add_axes((min(box.x1 + 0.03, 0.88), box.y0 + 0.1 * box.height, 0.022,
@@ -71,7 +79,8 @@ def plot_target_map(lat_deg: np.ndarray, lon_deg: np.ndarray, values: np.ndarray
         cbar = fig.colorbar(sc, cax=cax)
         cbar.set_label(style.metric_label(metric, {"long_name": long_name, "units": units},
                                           unit))
-        ax.set_title(f"Targets: {long_name}", pad=8)
+        title = f"Targets: {long_name}"
+        ax.set_title(title + (f" \u2014 study {study}" if study else ""), pad=8)
         style.add_caption(fig, caption)
         try:
             return style.save_png_and_pdf(fig, folder, stem)
