@@ -225,3 +225,16 @@ def test_geojson_file_relative_to_the_study(tmp_path):
         '"coordinates": [[[0, 0], [4, 0], [4, 4], [0, 4], [0, 0]]]}}')
     union, n = read_areas(["a.geojson"], tmp_path)
     assert n == 1 and union.area == 16.0
+
+
+def test_an_area_split_at_the_antimeridian_is_joined():
+    # RFC 7946 sec. 3.1.9: an area crossing the antimeridian is split into two polygons
+    obj = {"type": "MultiPolygon", "coordinates": [
+        [[[175, 0], [180, 0], [180, 10], [175, 10], [175, 0]]],
+        [[[-180, 0], [-175, 0], [-175, 10], [-180, 10], [-180, 0]]]]}
+    union, n = read_areas([obj], None)
+    c = GridSpec(1.0, region=Region.from_geometry(union)).cropped()
+    assert n == 2
+    assert (c.lon_min_deg, c.lon_max_deg, c.lat_min_deg, c.lat_max_deg) == (
+        175.0, -175.0, 0.0, 10.0)
+    assert Grid(c).n_computed == 100
