@@ -210,3 +210,23 @@ def test_targets_refuse_bad_lists():
         Targets(("a", "a"), (0.0, 1.0), (0.0, 0.0), (0.0, 0.0))
     with pytest.raises(CovergridError, match="latitudes"):
         Targets(("a",), (91.0,), (0.0,), (0.0,))
+
+
+def test_eccentric_orbits_at_cell_centres_give_the_kernel_values():
+    # the footprint bound changes with the radius: a pass in view at one sample must stay in
+    # reach at the next where the bound shrinks
+    from covergrid.orbits.walker import from_keplerian
+
+    els = from_keplerian(np.array([WGS84_A_KM + 900.0, WGS84_A_KM + 2000.0]),
+                         np.array([0.05, 0.12]), np.radians([63.4, 98.0]),
+                         np.radians([10.0, 200.0]), np.radians([270.0, 40.0]),
+                         mean_anomaly_rad=np.radians([0.0, 120.0]), ids=["e1", "e2"])
+    grid = GridSpec(10.0, lat_min_deg=-60.0, lat_max_deg=60.0)
+    sensor = Sensor(min_elevation_deg=5.0)
+    ds = compute_coverage(els, EPOCH, 86400.0, 60.0, grid, sensor, scheduler="synchronous")
+    lat, lon = np.meshgrid(ds.lat.values, ds.lon.values, indexing="ij")
+    out = evaluate_targets(els, THETA0, 86400.0, 60.0, _sites(lat, lon), sensor)
+    assert not out["passes"]["cut_at_end"][out["passes"]["set"] < 86400.0 - 1e-6].any()
+    for m in ("coverage_fraction", "max_gap", "pass_count"):
+        np.testing.assert_allclose(out["stats"][m], ds[m].values.ravel().astype(float),
+                                   rtol=1e-9, atol=1e-6, err_msg=m)

@@ -17,8 +17,8 @@ angle (:func:`~covergrid.compute.footprint.central_angle_bound`) widened by the 
 satellite moves over one step (so a pass between two samples is within reach at both),
 found among the sites sorted by geocentric latitude and then by their angle from the
 satellite. A pair (satellite, site) keeps its margins and rates of the last sample it was
-evaluated at; a pair not evaluated at the previous sample was out of reach there, hence
-not in view during the step.
+evaluated at; a pair newly in reach has them computed at the previous sample from the
+satellite's state there, so a pass beginning within the step is timed as any other.
 """
 
 from __future__ import annotations
@@ -134,8 +134,9 @@ def target_events(pos_km, vel_km_s, i0, rho, zc, sin_lat, cos_lat, cos_lon, sin_
         Sample spacing [s].
     pairs : ndarray, (n_sat, n_site, PAIR_COLUMNS)
         Per-pair state (see :data:`PAIR_COLUMNS`); the sample column starts at -2.
-    prev_pos : ndarray, (n_sat, 3)
-        Each satellite's position at the previous sample.
+    prev_pos : ndarray, (n_sat, 7)
+        Each satellite's position at the previous sample, its footprint bound and velocity
+        there.
     work : ndarray, (24,)
         Scratch room.
     out, n_out : ndarray
@@ -162,11 +163,17 @@ def target_events(pos_km, vel_km_s, i0, rho, zc, sin_lat, cos_lat, cos_lon, sin_
                 vz = vel_km_s[s, b, 2]
             rs = math.sqrt(x * x + y * y + z * z)
             lam = central_angle_bound(rs + 1e-3, el_min_rad, eta_max_rad, range_max_km)
-            reach = max(lam, 0.0)
+            # the larger of this and the previous sample's bound: a pair in view at the
+            # previous sample is within reach now even where the bound shrinks (eccentric)
+            reach = max(lam, prev_pos[s, 3], 0.0) if i > 0 else max(lam, 0.0)
+            prev_pos[s, 3] = lam
+            px = prev_pos[s, 0]
+            py = prev_pos[s, 1]
+            pz = prev_pos[s, 2]
+            pvx = prev_pos[s, 4]
+            pvy = prev_pos[s, 5]
+            pvz = prev_pos[s, 6]
             if i > 0:
-                px = prev_pos[s, 0]
-                py = prev_pos[s, 1]
-                pz = prev_pos[s, 2]
                 rp = math.sqrt(px * px + py * py + pz * pz)
                 c = (px * x + py * y + pz * z) / (rp * rs)
                 moved = math.acos(min(1.0, max(-1.0, c)))
@@ -174,6 +181,9 @@ def target_events(pos_km, vel_km_s, i0, rho, zc, sin_lat, cos_lat, cos_lon, sin_
             prev_pos[s, 0] = x
             prev_pos[s, 1] = y
             prev_pos[s, 2] = z
+            prev_pos[s, 4] = vx
+            prev_pos[s, 5] = vy
+            prev_pos[s, 6] = vz
             if lam < 0.0 and i == 0:
                 continue
             psi_s = math.asin(z / rs)
@@ -203,6 +213,19 @@ def target_events(pos_km, vel_km_s, i0, rho, zc, sin_lat, cos_lat, cos_lon, sin_
                         if xp < thr:
                             in1 = False
                 last = pairs[s, t, 6]
+                if i > 0 and last != i - 1:
+                    # newly in reach: its margins at the previous sample, from the
+                    # satellite's state there (a pass may begin within the step)
+                    lp = row_thresholds(px, py, pz, pvx, pvy, pvz, rho[t], zc[t], sin_lat[t],
+                                        cos_lat[t], sin_el, cos_eta, range_lim, refine)
+                    xq = cos_lon[t] * px + sin_lon[t] * py
+                    dxq = cos_lon[t] * pvx + sin_lon[t] * pvy
+                    for k in range(3):
+                        thr = lp[0] if k == 0 else (lp[2] if k == 1 else lp[4])
+                        rate = lp[1] if k == 0 else (lp[3] if k == 1 else lp[5])
+                        pairs[s, t, 2 * k] = NO_LIMIT_KM if thr <= NO_LIMIT_KM else xq - thr
+                        pairs[s, t, 2 * k + 1] = 0.0 if thr <= NO_LIMIT_KM else dxq - rate
+                    last = i - 1
                 if last == i - 1:
                     in0 = True
                     for k in range(6):
@@ -215,9 +238,7 @@ def target_events(pos_km, vel_km_s, i0, rho, zc, sin_lat, cos_lat, cos_lon, sin_
                                     several)
                     elif in0 != in1:
                         _push(out, n_out, t, s, float(i), 1.0 if in1 else -1.0)
-                elif in1:
-                    # not in reach at the previous sample: a rise at this sample (the span's
-                    # start, or rounding at the edge of the reach)
+                elif in1:  # in view at the span's start
                     _push(out, n_out, t, s, float(i), 1.0)
                 for k in range(6):
                     pairs[s, t, k] = work[6 + k]

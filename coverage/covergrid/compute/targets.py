@@ -194,7 +194,7 @@ def _events(elements: Any, theta0: float, n_steps: int, step_s: float, targets: 
             np.sin(lon[idx]), psi[idx], u[:, 0], u[:, 1], u[:, 2])]
         pairs = np.zeros((n_sat, len(idx), PAIR_COLUMNS))
         pairs[:, :, 6] = -2.0
-        chunks.append({"idx": idx, "geo": geo, "pairs": pairs, "prev": np.zeros((n_sat, 3)),
+        chunks.append({"idx": idx, "geo": geo, "pairs": pairs, "prev": np.zeros((n_sat, 7)),
                        "work": np.zeros(24), "out": np.zeros((room, 4)),
                        "n": np.zeros(1, np.int64)})
     n_samples = n_steps + 1 if refine else n_steps
