@@ -110,9 +110,10 @@ def test_min_elevation_goes_from_the_study_file_to_the_kernel(tmp_path, monkeypa
     seen = []
     real = kernel.run_band
 
-    def spy(state, pos_km, i0, rows, lon0_rad, dlon_rad, n_lon, el_min_rad, *args):
+    def spy(state, pos_km, i0, rows, lon0_rad, dlon_rad, n_lon, el_min_rad, *args, **kw):
         seen.append(el_min_rad)
-        return real(state, pos_km, i0, rows, lon0_rad, dlon_rad, n_lon, el_min_rad, *args)
+        return real(state, pos_km, i0, rows, lon0_rad, dlon_rad, n_lon, el_min_rad, *args,
+                    **kw)
 
     monkeypatch.setattr(kernel, "run_band", spy)
     result = run_study(study)

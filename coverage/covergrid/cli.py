@@ -262,13 +262,27 @@ def _cmd_run(args: argparse.Namespace) -> int:
     result = run_study(study, args.out, progress=not args.quiet, scheduler=args.scheduler,
                        maps=not args.no_maps, force=args.force, report=args.report)
     verdict = result.summary.get("requirement")
+    on_targets = (result.summary.get("targets") or {}).get("requirement")
     if not args.quiet:
         print(f"covergrid: wrote {len(result.files)} files to {result.out_dir}")
-    if verdict is not None:  # the verdict line, --quiet or not
+    if verdict is not None:  # the verdict lines, --quiet or not
         print(_verdict_text(verdict))
-    if verdict is not None and not verdict["met"]:
+    if on_targets is not None:
+        print(_target_verdict_text(on_targets))
+    if result.requirement_met is False:
         return EXIT_REQUIREMENT_NOT_MET
     return EXIT_OK
+
+
+def _target_verdict_text(v: dict) -> str:
+    """The target verdict line, numbers as the grid's verdict line shows them."""
+    sense = "at most" if v["sense"] == "at_most" else "at least"
+    state = "MET" if v["met"] else "NOT MET"
+    q = _quantity
+    return (f"target requirement {v['metric']} {sense} {q(v['threshold'], v['metric'])} at "
+            f"{100 * v['share']:g} % of the targets: {state} (achieved "
+            f"{q(v['achieved'], v['metric'])}, margin {q(v['margin'], v['metric'], signed=True)}"
+            f"; {100 * v['share_met']:.1f} % of the targets meet it)")
 
 
 def _verdict_text(v: dict) -> str:
@@ -418,14 +432,20 @@ def _estimate_text(study, est: dict, trades: dict) -> str:
         f"(limits {est['limits']['max_samples']:,} and "
         f"{est['limits']['max_satellite_samples']:,})",
         f"  grid            {study.grid.resolution_deg:g} deg, latitudes "
-        f"{study.grid.lat_min_deg:g} to {study.grid.lat_max_deg:g} deg -> "
-        f"{est['grid_rows']} x {est['grid_columns']} = {est['cells']:,} cells",
+        f"{study.grid.lat_min_deg:g} to {study.grid.lat_max_deg:g} deg"
+        + (f", longitudes {study.grid.lon_min_deg:g} to {study.grid.lon_max_deg:g} deg"
+           if (study.grid.lon_min_deg, study.grid.lon_max_deg) != (-180.0, 180.0) else "")
+        + (f", region {study.region.title()}" if study.region is not None else "")
+        + f" -> {est['grid_rows']} x {est['grid_columns']} = {est['cells']:,} cells"
+        + (" computed in the region's window" if study.region is not None else ""),
         f"  work            about {est['visits']:.3g} satellite-sample-cell visibilities in "
         f"{est['bands']} latitude bands, {est['tasks_at_once']} at once",
         f"  time            about {format_seconds(est['seconds'])} (computing "
         f"{format_seconds(est['compute_s'])}, figures {format_seconds(est['figures_s'])})",
         f"  memory          {memory(est)}",
     ]
+    if study.targets is not None:
+        lines.append(f"  targets         {len(study.targets.entries):,} point targets")
     if study.requirement is not None:
         from covergrid.compute.metrics import METRICS
         from covergrid.compute.quantities import requirement_text

@@ -3,7 +3,7 @@ one table. Figures also go to outputs/bench/results.json. Used by `make bench`.
 
     python tests/benchmarks/run_all.py [name ...]
 
-names: propagation w1 w2 w3 process cluster sweep (default: all).
+names: propagation w1 w2 w3 process cluster sweep regions targets (default: all).
 """
 
 from __future__ import annotations
@@ -28,6 +28,8 @@ BENCHES = {
                 f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
                 "import bench_cluster as b; print(json.dumps(b.run()))"],
     "process": [sys.executable, str(HERE / "bench_process.py")],
+    "regions": [sys.executable, str(HERE / "bench_regions.py"), "region"],
+    "targets": [sys.executable, str(HERE / "bench_regions.py"), "targets"],
     "sweep": [sys.executable, "-c",
               f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
               "import bench_sweep as b; print(json.dumps(b.run()))"],

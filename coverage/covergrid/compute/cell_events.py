@@ -115,8 +115,8 @@ def apply_events(a, heads, ev, kmax):
     for q in range(heads.shape[0] if by_cell else n_ev):
         c = q if by_cell else int(ev[q, 0])
         head = int(heads[c])
-        if head == 0:
-            continue  # this cell's events are applied already
+        if head <= 0:
+            continue  # applied already (0), or outside the grid's region (-1)
         heads[c] = 0.0
         e = head - 1
         nxt = int(ev[e, 3])

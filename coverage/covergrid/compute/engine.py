@@ -74,14 +74,21 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     n_rows = r1 - r0
     n_sat = len(elements.a_km)
     state = kernel_state.new_state(n_rows * n_lon, nfold_max, n_sat, n_rows, queue_per_cell)
+    mask = grid.cell_mask
+    if mask is not None:
+        state["heads"][~mask[r0:r1].ravel()] = -1.0  # outside the region: never computed
     el_min, eta_max, range_max = sensor.kernel_args()
     # continuous time needs the end of the span as a sample too (the last step's crossings)
     n_samples = n_steps + 1 if refine else n_steps
     block = position_block_length(n_sat, n_samples, with_velocity=refine)
     buf = np.empty((n_sat, block, 3))
     vbuf = np.empty((n_sat, block, 3)) if refine else None
-    lon0 = math.radians(-180.0)
+    # columns are counted round the circle from the window's western edge; the first n_lon
+    # of them are the grid's
+    lon0 = math.radians(grid_spec.lon_min_deg)
     dlon = math.radians(grid_spec.resolution_deg)
+    n_circle = grid_spec.n_lon_circle
+    cap = grid.cap(r0, r1)  # satellites whose footprint cannot reach it are skipped
     for i0 in range(0, n_samples, block):
         nb = min(block, n_samples - i0)
         t = (i0 + np.arange(nb)) * step_s
@@ -92,8 +99,8 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
                                                           out_v=_front(vbuf, nb))
         else:
             pos, vel = j2.propagate_to_ecef(elements, t, theta0_rad, out=out), None
-        kernel.run_band(state, pos, i0, geo, lon0, dlon, n_lon, el_min, eta_max, range_max,
-                        refine, vel, step_s)
+        kernel.run_band(state, pos, i0, geo, lon0, dlon, n_circle, el_min, eta_max, range_max,
+                        refine, vel, step_s, n_win=n_lon, cap=cap)
     kernel.close_band(state, n_steps)
     return state
 
@@ -196,6 +203,7 @@ def compute_coverage(
     n_sat = len(elements.a_km)
     if n_sat == 0:
         raise CovergridError("the constellation has no satellites", "constellation")
+    grid = grid.cropped()  # with a region: the smallest window holding it
     g = Grid(grid)
     theta0 = float(gmst_rad(epoch, 0.0))
     bands = row_bands(grid.n_lat, chunk_rows)
@@ -230,6 +238,19 @@ def compute_coverage(
         a = info.attrs()
         a["cell_methods"] = "area: point"
         ds[name] = (dims, arr, a)
+    mask = g.cell_mask
+    if mask is not None:
+        region = grid.region
+        assert region is not None
+        for name in data:
+            ds[name] = ds[name].where(mask)  # outside the region: NaN (integers as floats)
+        ds["in_region"] = (("lat", "lon"), mask.astype(np.int8), {
+            "long_name": "cell computed: its centre lies in the region", "units": "1",
+            "flag_values": np.array([0, 1], np.int8),
+            "flag_meanings": "outside_region inside_region",
+            "comment": f"Region: {region.label or region.surface}. Cells outside it are NaN "
+                       "in every metric and count as outside the area in every "
+                       "area-weighted statistic."})
     ds["visits"] = ((), visits, {
         "long_name": "satellite-sample-cell visibilities counted by the kernel", "units": "1"})
     ds.attrs.update({
@@ -250,6 +271,10 @@ def compute_coverage(
         "covergrid_max_range_km": float(sensor.max_range_km or np.nan),
         "covergrid_n_satellites": int(n_sat),
         "covergrid_resolution_deg": float(grid.resolution_deg),
+        "covergrid_lon_min_deg": float(grid.lon_min_deg),
+        "covergrid_lon_max_deg": float(grid.lon_max_deg),
+        "covergrid_region": "" if grid.region is None else (grid.region.label
+                                                            or grid.region.surface),
         "covergrid_refine_transitions": int(bool(refine_transitions)),
     })
     if attrs:

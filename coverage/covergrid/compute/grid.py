@@ -1,38 +1,60 @@
 """Regular latitude/longitude grids of ground cells on the WGS-84 ellipsoid.
 
 A grid is a set of cells bounded by parallels and meridians, ``resolution_deg`` on a side,
-covering all longitudes and the latitude band ``[lat_min_deg, lat_max_deg]``. Latitudes are
-geodetic. Each cell is represented by its centre point on the ellipsoid surface (height 0),
-and weighted in every statistic by its exact area on the ellipsoid.
+covering the latitude band ``[lat_min_deg, lat_max_deg]`` and the longitudes from
+``lon_min_deg`` eastward to ``lon_max_deg`` (all of them by default; a window may cross the
+antimeridian, e.g. 170 to -170). Rows start at ``lat_min_deg`` and columns at
+``lon_min_deg``, each a whole number of cells; column longitudes increase eastward from
+``lon_min_deg`` and run past 180 deg east of the antimeridian, so they stay monotonic.
+Latitudes are geodetic. Each cell is represented by its centre point on the ellipsoid surface
+(height 0), and weighted in every statistic by its exact area on the ellipsoid.
+
+A grid may carry a :class:`~covergrid.compute.region.Region`: then only the cells whose
+centre lies in the region are computed, and :meth:`GridSpec.cropped` is the smallest grid of
+the same cells that holds all of them (what the engine computes on).
 """
 
 from __future__ import annotations
 
+import functools
 import math
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import cached_property
+from typing import Any
 
 import numpy as np
 
+from covergrid.compute.region import Region
 from covergrid.constants import WGS84_A_KM, WGS84_E2
 from covergrid.errors import CovergridError
 
-__all__ = ["Grid", "GridSpec", "authalic_q", "ellipsoid_area_km2", "grid_shape", "row_bands"]
+__all__ = ["Grid", "GridSpec", "authalic_q", "ellipsoid_area_km2", "grid_shape",
+           "lon_span_deg", "row_bands"]
 
 _EPS = 1e-9
 
 
-def grid_shape(resolution_deg: float, lat_min_deg: float, lat_max_deg: float) -> tuple[int, int]:
+def lon_span_deg(lon_min_deg: float, lon_max_deg: float) -> float:
+    """Width of the longitudes from ``lon_min_deg`` eastward to ``lon_max_deg`` [deg]:
+    ``lon_max - lon_min``, plus 360 when the window crosses the antimeridian
+    (``lon_min > lon_max``); -180 to 180 is the whole circle."""
+    span = lon_max_deg - lon_min_deg
+    return span + 360.0 if span < 0.0 else span
+
+
+def grid_shape(resolution_deg: float, lat_min_deg: float, lat_max_deg: float,
+               lon_min_deg: float = -180.0, lon_max_deg: float = 180.0) -> tuple[int, int]:
     """(rows, columns) of a regular grid, checking that its cells are whole.
 
-    The one rule of a grid's shape: 360 deg is a whole multiple of the resolution, and so is
-    the latitude band.
+    The one rule of a grid's shape: 360 deg is a whole multiple of the resolution, and so are
+    the latitude band and the longitude window.
 
     Raises
     ------
     CovergridError
-        Naming ``grid.resolution_deg``, ``grid.lat_min_deg`` or ``grid.lat_max_deg``.
+        Naming ``grid.resolution_deg``, ``grid.lat_min_deg``, ``grid.lat_max_deg``,
+        ``grid.lon_min_deg`` or ``grid.lon_max_deg``.
     """
     res = resolution_deg
     if not (math.isfinite(res) and 0.0 < res <= 90.0):
@@ -61,7 +83,22 @@ def grid_shape(resolution_deg: float, lat_min_deg: float, lat_max_deg: float) ->
             f"of {res!r} deg cells; move its edges to multiples of the resolution",
             "grid.lat_max_deg",
         )
-    return int(round(n_lat)), int(round(n_lon))
+    for name, v in (("lon_min_deg", lon_min_deg), ("lon_max_deg", lon_max_deg)):
+        if not (math.isfinite(v) and -180.0 <= v <= 180.0):
+            raise CovergridError(f"{v!r} deg is outside [-180, 180]", f"grid.{name}")
+    if lon_min_deg == lon_max_deg:
+        raise CovergridError(
+            f"lon_min_deg and lon_max_deg are both {lon_min_deg!r}; allowed: different values "
+            "(all longitudes: -180 and 180; crossing the antimeridian: e.g. 170 and -170)",
+            "grid.lon_max_deg")
+    span = lon_span_deg(lon_min_deg, lon_max_deg)
+    n_win = span / res
+    if abs(n_win - round(n_win)) > _EPS * max(n_win, 1.0):
+        raise CovergridError(
+            f"the longitudes {lon_min_deg!r}..{lon_max_deg!r} deg ({span:g} deg) are not a "
+            f"whole number of {res!r} deg cells; move lon_max_deg to lon_min_deg plus a "
+            "multiple of the resolution", "grid.lon_max_deg")
+    return int(round(n_lat)), int(round(n_win))
 
 
 @dataclass(frozen=True)
@@ -74,37 +111,81 @@ class GridSpec:
         Cell size in latitude and longitude [deg]; 360 must be a whole multiple of it.
     lat_min_deg, lat_max_deg : float
         Latitude band [deg]; its width must be a whole multiple of the resolution.
+    lon_min_deg, lon_max_deg : float
+        Longitudes from ``lon_min_deg`` eastward to ``lon_max_deg`` [deg], each in
+        [-180, 180]; ``lon_min_deg > lon_max_deg`` crosses the antimeridian; the window's
+        width must be a whole multiple of the resolution.
+    region : Region, optional
+        Compute only the cells whose centre lies in it (see :meth:`cropped`).
     """
 
     resolution_deg: float = 2.0
     lat_min_deg: float = -90.0
     lat_max_deg: float = 90.0
+    lon_min_deg: float = -180.0
+    lon_max_deg: float = 180.0
+    region: Region | None = None
 
     def __post_init__(self) -> None:
-        grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg)
+        self.shape  # noqa: B018  (checks the cells are whole)
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        """(rows, columns) of the grid's extent."""
+        return grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg,
+                          self.lon_min_deg, self.lon_max_deg)
 
     @property
     def n_lat(self) -> int:
         """Number of latitude rows."""
-        return grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg)[0]
+        return self.shape[0]
 
     @property
     def n_lon(self) -> int:
-        """Number of longitude columns."""
-        return grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg)[1]
+        """Number of longitude columns of the window."""
+        return self.shape[1]
+
+    @property
+    def n_lon_circle(self) -> int:
+        """Columns all round a parallel (360 deg / resolution)."""
+        return int(round(360.0 / self.resolution_deg))
 
     @property
     def n_cells(self) -> int:
-        """Number of cells."""
+        """Number of cells of the extent (with a region, also those outside it)."""
         return self.n_lat * self.n_lon
+
+    @property
+    def full_circle(self) -> bool:
+        """True when the columns go all round the parallels."""
+        return self.n_lon == self.n_lon_circle
+
+    def cropped(self) -> GridSpec:
+        """The smallest grid of the same cells holding every cell of the region (itself
+        without a region); its region is the same, so cropping again changes nothing.
+
+        Raises
+        ------
+        CovergridError
+            Naming ``region``, when no cell centre lies in the region.
+        """
+        return self if self.region is None else _cropped(self)
+
+    def identity(self) -> dict[str, Any]:
+        """The grid as plain data (the region by its identity: surface, label, digest)."""
+        return {"resolution_deg": self.resolution_deg, "lat_min_deg": self.lat_min_deg,
+                "lat_max_deg": self.lat_max_deg, "lon_min_deg": self.lon_min_deg,
+                "lon_max_deg": self.lon_max_deg,
+                "region": None if self.region is None else self.region.identity()}
 
 
 @dataclass(frozen=True)
 class Grid:
     """Cell geometry of a :class:`GridSpec` (all arrays read-only, radians and km inside).
 
-    Longitude columns start at -180 deg: column ``j`` spans
-    ``[-180 + j * res, -180 + (j + 1) * res)`` with its centre half a cell in.
+    Longitude columns start at ``lon_min_deg``: column ``j`` spans
+    ``[lon_min + j * res, lon_min + (j + 1) * res)`` with its centre half a cell in (past
+    180 deg east of the antimeridian).
     """
 
     spec: GridSpec
@@ -117,9 +198,9 @@ class Grid:
 
     @cached_property
     def lon_edges_deg(self) -> np.ndarray:
-        """Column edges, (n_lon + 1,) [deg], from -180 to 180."""
+        """Column edges, (n_lon + 1,) [deg], increasing from lon_min_deg."""
         s = self.spec
-        return -180.0 + s.resolution_deg * np.arange(s.n_lon + 1)
+        return s.lon_min_deg + s.resolution_deg * np.arange(s.n_lon + 1)
 
     @cached_property
     def lat_deg(self) -> np.ndarray:
@@ -156,6 +237,58 @@ class Grid:
     def cell_area_km2(self) -> np.ndarray:
         """Exact ellipsoid area of every cell, (n_lat, n_lon) [km^2]."""
         return np.broadcast_to(self.row_area_km2[:, None], (self.spec.n_lat, self.spec.n_lon))
+
+    @cached_property
+    def cell_mask(self) -> np.ndarray | None:
+        """Cells computed, (n_lat, n_lon) bool (read-only): those whose centre lies in the
+        region; None without a region (every cell)."""
+        region = self.spec.region
+        if region is None:
+            return None
+        lon, lat = np.meshgrid(self.lon_deg, self.lat_deg)
+        mask = region.contains(lon, lat)
+        mask.flags.writeable = False
+        return mask
+
+    @cached_property
+    def n_computed(self) -> int:
+        """Number of cells computed (in the region, or all)."""
+        mask = self.cell_mask
+        return self.spec.n_cells if mask is None else int(mask.sum())
+
+    def cap(self, r0: int, r1: int) -> tuple[float, float, float, float]:
+        """A spherical cap holding every cell of rows [r0, r1): the geocentric unit vector of
+        its centre and its angular radius [rad] (4.0, more than pi, when the columns go all
+        round: no useful cap).
+
+        The farthest point of the cells from the centre lies on their boundary (a distance
+        on the sphere has no interior maximum short of the antipode), so the radius is the
+        largest angle to the boundary sampled at a quarter cell, plus that spacing (a
+        conservative margin).
+        """
+        s = self.spec
+        if self.spec.full_circle:
+            return (1.0, 0.0, 0.0, 4.0)
+        lat = np.radians(self.lat_edges_deg[[r0, r1]])
+        lon = np.radians(self.lon_edges_deg[[0, -1]])
+        step = math.radians(s.resolution_deg) / 4.0
+        n_lat = max(2, int(math.ceil((lat[1] - lat[0]) / step)) + 1)
+        n_lon = max(2, int(math.ceil((lon[1] - lon[0]) / step)) + 1)
+        la = np.linspace(lat[0], lat[1], n_lat)
+        lo = np.linspace(lon[0], lon[1], n_lon)
+        pts_lat = np.concatenate([la, la, np.full(n_lon, lat[0]), np.full(n_lon, lat[1])])
+        pts_lon = np.concatenate([np.full(n_lat, lon[0]), np.full(n_lat, lon[1]), lo, lo])
+        # geocentric directions of points on the ellipsoid (geodetic latitude in)
+        psi = np.arctan((1.0 - WGS84_E2) * np.tan(pts_lat))
+        u = np.stack([np.cos(psi) * np.cos(pts_lon), np.cos(psi) * np.sin(pts_lon),
+                      np.sin(psi)], axis=-1)
+        centre = u.mean(axis=0)
+        norm = float(np.linalg.norm(centre))
+        if norm < 1e-6:
+            return (1.0, 0.0, 0.0, 4.0)
+        centre /= norm
+        radius = float(np.max(np.arccos(np.clip(u @ centre, -1.0, 1.0)))) + step
+        return (float(centre[0]), float(centre[1]), float(centre[2]), radius)
 
     @cached_property
     def row_geometry(self) -> dict[str, np.ndarray]:
@@ -195,6 +328,44 @@ class Grid:
         y = g["cos_lat"][:, None] * np.sin(lon)[None, :]
         z = np.broadcast_to(g["sin_lat"][:, None], x.shape)
         return np.stack([x, y, z], axis=-1)
+
+
+@functools.lru_cache(maxsize=16)
+def _cropped(spec: GridSpec) -> GridSpec:
+    """:meth:`GridSpec.cropped` (cached: a land mask of a fine grid takes a second or two)."""
+    mask = Grid(spec).cell_mask
+    assert mask is not None
+    rows = np.flatnonzero(mask.any(axis=1))
+    if rows.size == 0:
+        raise CovergridError(
+            f"holds no cell centre of the {spec.resolution_deg:g} deg grid (latitudes "
+            f"{spec.lat_min_deg:g} to {spec.lat_max_deg:g}, longitudes {spec.lon_min_deg:g} to "
+            f"{spec.lon_max_deg:g}); allowed: a region holding at least one cell centre: use a "
+            "finer grid.resolution_deg, a larger area or wider grid limits", "region")
+    res = spec.resolution_deg
+    cols = mask.any(axis=0)
+    if spec.full_circle:
+        # the window starts after the longest run of empty columns round the circle
+        empty = np.concatenate([~cols, ~cols])
+        best, start, run = 0, 0, 0
+        for j, e in enumerate(empty):
+            run = run + 1 if e else 0
+            if run > best:
+                best, start = min(run, cols.size), j + 1
+        c0, n = (0, cols.size) if best == 0 else (start % cols.size, cols.size - best)
+    else:
+        idx = np.flatnonzero(cols)
+        c0, n = int(idx[0]), int(idx[-1] - idx[0] + 1)
+    lon0 = (spec.lon_min_deg + c0 * res + 180.0) % 360.0 - 180.0
+    lon1 = (lon0 + n * res + 180.0) % 360.0 - 180.0
+    if n == spec.n_lon_circle:
+        lon0, lon1 = spec.lon_min_deg, spec.lon_max_deg
+    elif lon1 == -180.0 and lon0 != -180.0:
+        lon1 = 180.0
+    # limits to 1e-9 deg (0.1 mm): 10.000000000000014 read back as the 10 it stands for
+    return replace(spec, lat_min_deg=round(spec.lat_min_deg + int(rows[0]) * res, 9),
+                   lat_max_deg=round(spec.lat_min_deg + (int(rows[-1]) + 1) * res, 9),
+                   lon_min_deg=round(lon0, 9), lon_max_deg=round(lon1, 9))
 
 
 def authalic_q(lat_rad: np.ndarray | float) -> np.ndarray:

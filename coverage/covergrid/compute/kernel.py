@@ -63,7 +63,7 @@ _EDGE_PAD_RAD = 1e-4
 
 @kernel_function
 def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_lon, lon0, dlon,
-            n_lon,
+            n_lon, n_win, cap,
             el_min_rad, eta_max_rad, range_max_km, refine, step_s, acc, heads, events,
             rows_prev, prev_rows, bound_cache, prev_pos, visits):
     """Advance one latitude band's streaming state over a block of samples.
@@ -85,6 +85,17 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
         Row geometry of the band (see :attr:`covergrid.compute.grid.Grid.row_geometry`).
     lon0, dlon : float
         Western edge of column 0 and column width [rad]; n_lon columns cover 360 deg.
+    n_win : int
+        Columns that are cells, from column 0 (n_lon without longitude limits): a row's
+        cells are ``r * n_win + j`` for j < n_win, and the columns beyond are never visited
+        (:mod:`covergrid.compute.row_events`). A cell whose ``heads`` entry is -1 lies
+        outside the grid's region and is skipped.
+    cap : tuple of 4 float
+        A spherical cap holding every cell of the band (geocentric unit vector of its centre
+        and its angular radius [rad]; a radius >= pi holds everything). A satellite whose
+        footprint bound, widened by its motion over the step, does not reach the cap sees
+        no cell of the band at this sample nor within the step before it: its rows are
+        left alone (the previous sample's intervals are closed once, then nothing).
     el_min_rad, eta_max_rad, range_max_km : float
         Sensor limits; eta_max_rad <= 0 and range_max_km <= 0 mean "no limit".
     refine : bool
@@ -112,6 +123,12 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
     sat = (1.0, 0.0, 0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 0.0, 1.0, 1.0)
     no_limits = (NO_LIMIT_KM, 0.0, NO_LIMIT_KM, 0.0, NO_LIMIT_KM, 0.0)
     several = cos_eta > -1.5 or range_lim > 0.0  # more than the elevation limit
+    cap_x, cap_y, cap_z, cap_r = cap
+    masked = False  # any cell outside the region (queue head -1)? then cells are checked
+    for c in range(heads.shape[0]):
+        if heads[c] < 0.0:
+            masked = True
+            break
     for b in range(n_block):
         i = i0 + b
         timed = refine and i > 0
@@ -138,7 +155,22 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
             bound_cache[s, 2] = lam
             c_lo = 0
             c_hi = 0
-            if lam >= 0.0:
+            far = False
+            if cap_r < math.pi:
+                # the angle moved since the previous sample (a tenth more, and 1e-4 rad)
+                # plus the footprint bound: beyond the cap's edge, nothing of the band seen
+                qx = prev_pos[s, 0]
+                qy = prev_pos[s, 1]
+                qz = prev_pos[s, 2]
+                rq = math.sqrt(qx * qx + qy * qy + qz * qz)
+                moved = math.pi
+                if i > 0 and rq > 0.0:
+                    cm = (qx * x + qy * y + qz * z) / (rq * rs)
+                    moved = 1.1 * math.acos(min(1.0, max(-1.0, cm))) + 1e-4
+                reach = cap_r + max(lam, lam_prev) + moved
+                far = reach < math.pi and (cap_x * x + cap_y * y + cap_z * z) < rs * math.cos(
+                    reach)
+            if lam >= 0.0 and not far:
                 psi_s = math.asin(z / rs)
                 if psi_s + lam >= psi_lo_band and psi_s - lam <= psi_hi_band:
                     c_lo = np.searchsorted(psi, psi_s - lam)
@@ -154,7 +186,7 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
             pvx = prev_pos[s, 3]
             pvy = prev_pos[s, 4]
             pvz = prev_pos[s, 5]
-            if timed and max(lam, lam_prev) >= 0.0:
+            if timed and max(lam, lam_prev) >= 0.0 and not far:
                 # rows reached within the step: the track's latitude between the samples
                 # (its turning point lies beyond both) widened by the footprint bound
                 lam_s = max(lam, lam_prev)
@@ -236,15 +268,15 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                         rows_prev[s, r, 1] = cl
                         for k in range(6 if several else 2):
                             rows_prev[s, r, 2 + k] = lim1[k]
-                    base = r * n_lon
+                    base = r * n_win
                     geo = (px, py, pvx, pvy, x, y, vx, vy, x0, rate0, x1, rate1)
                     if timed:
-                        timed_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, lon0, dlon,
-                                  cos_lon, sin_lon, geo, sat, (lim0, lim1), several, dt,
-                                  t_sample - 1.0, kmax)
+                        timed_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, n_win, masked,
+                                  lon0, dlon, cos_lon, sin_lon, geo, sat, (lim0, lim1), several,
+                                  dt, t_sample - 1.0, kmax)
                     elif cs != ps or cl != pl:
-                        changed_cells(acc, heads, events, base, cs, cl, ps, pl, n_lon, cos_lon,
-                                      sin_lon, geo, dt, t_sample, False, kmax)
+                        changed_cells(acc, heads, events, base, cs, cl, ps, pl, n_lon, n_win,
+                                      masked, cos_lon, sin_lon, geo, dt, t_sample, False, kmax)
             prev_rows[s, 0] = c_lo
             prev_rows[s, 1] = c_hi
             if lo < hi:
@@ -269,11 +301,15 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
              rows: dict[str, np.ndarray], lon0_rad: float, dlon_rad: float, n_lon: int,
              el_min_rad: float, eta_max_rad: float, range_max_km: float,
              refine: bool = True, vel_km_s: np.ndarray | None = None,
-             step_s: float = 1.0) -> None:
+             step_s: float = 1.0, n_win: int | None = None,
+             cap: tuple[float, float, float, float] | None = None) -> None:
     """Python entry point to :func:`advance` with the state held in a dict.
 
     With ``refine``, ``vel_km_s`` (the positions' time derivatives, same shape) and the
-    sample spacing ``step_s`` [s] are required.
+    sample spacing ``step_s`` [s] are required. ``n_lon`` columns from ``lon0_rad`` go
+    round the circle; the first ``n_win`` of them (default all) are the band's cells.
+    ``cap`` (centre unit vector, radius [rad]) holds every cell of the band (default: the
+    whole sphere); see :func:`advance`.
     """
     st = state
     pos = np.ascontiguousarray(pos_km, dtype=np.float64)
@@ -286,7 +322,9 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
     lon = lon0_rad + (np.arange(n_lon) + 0.5) * dlon_rad
     advance(pos, vel, int(i0), rows["rho_km"], rows["z_km"], rows["sin_lat"], rows["cos_lat"],
             rows["psi_rad"], np.cos(lon), np.sin(lon), float(lon0_rad), float(dlon_rad),
-            int(n_lon), float(el_min_rad),
+            int(n_lon), int(n_lon if n_win is None else n_win),
+            (1.0, 0.0, 0.0, 4.0) if cap is None else tuple(float(v) for v in cap),
+            float(el_min_rad),
             float(eta_max_rad), float(range_max_km), bool(refine), float(step_s), st["acc"],
             st["heads"], st["events"], st["rows_prev"], st["prev_rows"], st["bound_cache"],
             st["prev_pos"], st["visits"])

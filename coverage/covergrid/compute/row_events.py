@@ -21,6 +21,13 @@ through its values and rates at the two samples; its zeros are the crossings
 * where the row is reached, left or filled only within the step, every cell within a
   conservative bound of the interval over the step (the satellite's longitude range and the
   half-width's range from the Hermite interpolants of both).
+
+Columns are counted round the whole circle (``n_lon``, from the grid's western edge
+``lon0``), but only the first ``n_win`` are cells (a grid with longitude limits): every range
+of columns is cut to them before its cells are visited, so columns outside the window cost
+nothing. A cell outside the grid's region has its queue head ``heads[c]`` set to -1 and is
+skipped (one read, only when the band has such cells: ``masked``); it is never solved or
+queued.
 """
 
 from __future__ import annotations
@@ -149,8 +156,8 @@ def _difference_ranges(sa, la, sb, lb, n_lon):
 
 
 @kernel_function
-def changed_cells(a, heads, ev, base, cs, cl, ps, pl, n_lon, cos_lon, sin_lon, geo, dt, t,
-                  timed, kmax):
+def changed_cells(a, heads, ev, base, cs, cl, ps, pl, n_lon, n_win, masked, cos_lon, sin_lon, geo,
+                  dt, t, timed, kmax):
     """Events of the cells of a row whose state differs between the previous interval
     (ps, pl) and the new one (cs, cl) (``base``: the row's first cell): at the sample t, or
     with ``timed`` at their crossing times in the step from t. Arrivals at a sample are
@@ -161,13 +168,18 @@ def changed_cells(a, heads, ev, base, cs, cl, ps, pl, n_lon, cos_lon, sin_lon, g
         else:
             sa, la, sb, lb, delta = ps, pl, cs, cl, -1.0
         per_cell, lo0, hi0, lo1, hi1 = _difference_ranges(sa, la, sb, lb, n_lon)
-        for part in range(2):
-            lo = lo0 if part == 0 else lo1
-            hi = hi0 if part == 0 else hi1
-            for jj in range(lo, hi):
-                j = wrap_column(jj, n_lon)  # lo, hi within [0, 2 n_lon)
+        for part in range(4):
+            # each range (lo, hi within [0, 2 n_lon)) cut to the window's columns: its
+            # copies [0, n_win) and [n_lon, n_lon + n_win); nothing is done outside them
+            lo = lo0 if part < 2 else lo1
+            hi = hi0 if part < 2 else hi1
+            off = 0 if part % 2 == 0 else n_lon
+            for jj in range(max(lo, off), min(hi, off + n_win)):
+                j = jj - off
                 if per_cell and wrap_column(j - sb, n_lon) < lb:
                     continue
+                if masked and heads[base + j] < 0.0:
+                    continue  # outside the region (see the module notes)
                 if timed:
                     _solve_cell(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, dt, t,
                                 delta < 0.0, delta > 0.0)
@@ -178,8 +190,8 @@ def changed_cells(a, heads, ev, base, cs, cl, ps, pl, n_lon, cos_lon, sin_lon, g
 
 
 @kernel_helper
-def _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo, dt,
-                 t0, lo, hi, skip_changed, lims, kinked):
+def _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+                 sin_lon, geo, dt, t0, lo, hi, skip_changed, lims, kinked):
     """Solve the cells of a row whose centre longitude lies in [lo, hi] (unwrapped; the
     whole row when that spans the circle), except, with ``skip_changed``, those whose
     sampled state differs (solved already); with ``kinked`` limit by limit."""
@@ -189,23 +201,31 @@ def _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
     else:
         j0 = int(math.ceil((lo - lon0) / dlon - 0.5))
         j1 = int(math.floor((hi - lon0) / dlon - 0.5)) + 1
-    j = (j0 - 1) % n_lon
-    for _ in range(j0, j1):
-        j = 0 if j == n_lon - 1 else j + 1
-        in0 = pl > 0 and wrap_column(j - ps, n_lon) < pl
-        in1 = cl > 0 and wrap_column(j - cs, n_lon) < cl
-        if skip_changed and in0 != in1:
-            continue
-        if kinked:
-            _solve_cell_limits(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, lims, dt, t0,
-                               in0, in1)
-        else:
-            _solve_cell(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, dt, t0, in0, in1)
+    # the columns j0 .. j1 - 1 round the circle, from js in [0, n_lon), cut to the window's
+    # columns [0, n_win) and their copy [n_lon, n_lon + n_win)
+    js = j0 % n_lon
+    je = js + min(j1 - j0, n_lon)
+    for part in range(2):
+        off = 0 if part == 0 else n_lon
+        for jj in range(max(js, off), min(je, off + n_win)):
+            j = jj - off
+            if masked and heads[base + j] < 0.0:
+                continue  # outside the region
+            in0 = pl > 0 and wrap_column(j - ps, n_lon) < pl
+            in1 = cl > 0 and wrap_column(j - cs, n_lon) < cl
+            if skip_changed and in0 != in1:
+                continue
+            if kinked:
+                _solve_cell_limits(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, lims, dt,
+                                   t0, in0, in1)
+            else:
+                _solve_cell(heads, ev, base + j, cos_lon[j], sin_lon[j], geo, dt, t0, in0,
+                            in1)
 
 
 @kernel_function
-def _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo, dt,
-                 t0, ranges, skip_changed, lims, kinked):
+def _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+                 sin_lon, geo, dt, t0, ranges, skip_changed, lims, kinked):
     """Solve the cells of a row within the union of up to four longitude ranges ((lo, hi);
     lo > hi: unused), each cell once. Not inlined: rare and long."""
     (l0, h0), (l1, h1), (l2, h2), (l3, h3) = ranges
@@ -232,8 +252,8 @@ def _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
             span_lo = min(span_lo, lo)
             span_hi = max(span_hi, hi)
     if span_hi - span_lo >= 2.0 * math.pi - dlon:
-        _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-                     dt, t0, 0.0, 2.0 * math.pi, skip_changed, lims, kinked)
+        _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+                     sin_lon, geo, dt, t0, 0.0, 2.0 * math.pi, skip_changed, lims, kinked)
         return
     for k in range(4):
         lo, hi = (l0, h0) if k == 0 else ((l1, h1) if k == 1 else ((l2, h2) if k == 2
@@ -244,14 +264,14 @@ def _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
             cur_hi = max(cur_hi, hi)
             continue
         if first > 0.0:
-            _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon,
-                         geo, dt, t0, cur_lo, cur_hi, skip_changed, lims, kinked)
+            _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+                         sin_lon, geo, dt, t0, cur_lo, cur_hi, skip_changed, lims, kinked)
         first = 1.0
         cur_lo = lo
         cur_hi = hi
     if first > 0.0:
-        _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-                     dt, t0, cur_lo, cur_hi, skip_changed, lims, kinked)
+        _sweep_range(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+                     sin_lon, geo, dt, t0, cur_lo, cur_hi, skip_changed, lims, kinked)
 
 
 @kernel_helper
@@ -281,8 +301,8 @@ def _kinked(lims, dt):
 
 
 @kernel_helper
-def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-              sat, lims, several, dt, t0, kmax):
+def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+              sin_lon, geo, sat, lims, several, dt, t0, kmax):
     """Queue every crossing of one row in the step from t0 (continuous time; see module).
 
     ``geo`` as for the cells; ``sat`` = previous and current satellite distance from the
@@ -302,8 +322,9 @@ def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
     none = (1.0, -1.0)
     kinked = several and _kinked(lims, dt)
     if near_axis > 0.0:
-        _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-                     dt, t0, ((0.0, 2.0 * math.pi), none, none, none), False, lims, kinked)
+        _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+                     sin_lon,
+                     geo, dt, t0, ((0.0, 2.0 * math.pi), none, none, none), False, lims, kinked)
         return
     if kinked:
         # the binding limit changes within the step: bound the threshold X* = max_k X*_k
@@ -326,8 +347,9 @@ def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
         w_lo = 0.0 if c_hi >= 1.0 else math.acos(max(c_hi, -1.0))
         w_hi += _EDGE_PAD_RAD
         w_lo = max(w_lo - _EDGE_PAD_RAD, 0.0)
-        _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo,
-                     dt, t0, ((lon_a - w_hi, lon_b - w_lo), (lon_a + w_lo, lon_b + w_hi),
+        _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+                     sin_lon,
+                     geo, dt, t0, ((lon_a - w_hi, lon_b - w_lo), (lon_a + w_lo, lon_b + w_hi),
                               none, none), False, lims, True)
         return
     # the interval's half-width W over the step: cos W = c = X*/rho_sat, smooth
@@ -344,8 +366,8 @@ def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
         # partly seen at both samples: the changed cells cross; more only where the
         # interval jumps by more than its width, or an edge turns round within the step
         if cs != ps or cl != pl:
-            changed_cells(a, heads, ev, base, cs, cl, ps, pl, n_lon, cos_lon, sin_lon, geo, dt,
-                          t0, True, kmax)
+            changed_cells(a, heads, ev, base, cs, cl, ps, pl, n_lon, n_win, masked, cos_lon,
+                          sin_lon, geo, dt, t0, True, kmax)
         s0 = math.sqrt(1.0 - c0 * c0)  # sin W
         s1 = math.sqrt(1.0 - c1 * c1)
         if c0 + c1 > 0.0 and cos_dlon < c0 * c1 - s0 * s1 + _DISJOINT_PAD:
@@ -382,8 +404,8 @@ def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
                 loose = True  # the interval vanishes or fills the row within the step
         if not loose:
             if gap[0] <= gap[1] or right[0] <= right[1] or left[0] <= left[1]:
-                _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon,
-                             sin_lon, geo, dt, t0, (gap, right, left, none), True, lims,
+                _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon,
+                             cos_lon, sin_lon, geo, dt, t0, (gap, right, left, none), True, lims,
                              False)
             return
     else:
@@ -398,6 +420,7 @@ def timed_row(a, heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, si
     w_lo = 0.0 if c_hi >= 1.0 else math.acos(max(c_hi, -1.0))
     w_hi += _EDGE_PAD_RAD
     w_lo = max(w_lo - _EDGE_PAD_RAD, 0.0)
-    _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, lon0, dlon, cos_lon, sin_lon, geo, dt,
-                 t0, ((lon_a - w_hi, lon_b - w_lo), (lon_a + w_lo, lon_b + w_hi), gap, none),
+    _sweep_union(heads, ev, base, ps, pl, cs, cl, n_lon, n_win, masked, lon0, dlon, cos_lon,
+                 sin_lon, geo,
+                 dt, t0, ((lon_a - w_hi, lon_b - w_lo), (lon_a + w_lo, lon_b + w_hi), gap, none),
                  partly, lims, False)

@@ -15,6 +15,8 @@ reported is one that actually occurs on the grid.
 
 Cells whose metric is NaN are left out of the statistics and reported as the missing share
 of the area (``valid_area_fraction`` < 1); a requirement verdict counts them as failing.
+Cells outside the grid's region (``in_region`` = 0) are not part of the area at all: every
+statistic and verdict weights them by zero (:func:`region_area`).
 
 References
 ----------
@@ -37,6 +39,7 @@ __all__ = [
     "weighted_quantile",
     "area_statistics",
     "band_statistics",
+    "region_area",
     "requirement_verdict",
     "summarise",
     "summary_rows",
@@ -48,7 +51,7 @@ PERCENTILES = (50, 90, 95)
 #: Shares of area closer than this to a quantile's target count as reaching it [unitless].
 AREA_SHARE_TOLERANCE = 1e-9
 #: Variables of the coverage Dataset that are not metrics.
-_NOT_METRICS = frozenset({"cell_area", "lat_bnds", "lon_bnds"})
+_NOT_METRICS = frozenset({"cell_area", "lat_bnds", "lon_bnds", "in_region"})
 
 CSV_COLUMNS = (
     "metric", "k", "units", "scope", "lat_min_deg", "lat_max_deg", "area_m2",
@@ -271,7 +274,7 @@ def requirement_verdict(ds: xr.Dataset, metric: str, *, at_most: float | None = 
         raise ValueError(f"area_fraction must be in (0, 1]; got {area_fraction!r}")
     da = _select(ds, metric, k)
     x = da.transpose("lat", "lon").values.astype(float)
-    w = ds["cell_area"].transpose("lat", "lon").values.astype(float)
+    w = region_area(ds).transpose("lat", "lon").values.astype(float)
     total = float(w.sum())
     if at_most is not None:
         threshold = float(at_most)
@@ -318,7 +321,7 @@ def summarise(ds: xr.Dataset, *, band_width_deg: float = 10.0,
         "bands": [...]}, ...], "band_width_deg", "percentiles", "requirement": verdict|None,
         "attrs": selected global attributes}``.
     """
-    area = ds["cell_area"]
+    area = region_area(ds)
     lat_bnds = ds["lat_bnds"].values if "lat_bnds" in ds else None
     metrics = []
     for name, k, da in _metric_fields(ds):
@@ -334,6 +337,15 @@ def summarise(ds: xr.Dataset, *, band_width_deg: float = 10.0,
             if key.startswith("covergrid_") and key != "covergrid_study"}
     return {"percentiles": list(PERCENTILES), "band_width_deg": float(band_width_deg),
             "metrics": metrics, "requirement": verdict, "attrs": keep}
+
+
+def region_area(ds: xr.Dataset) -> xr.DataArray:
+    """The weight of every cell in the statistics [m2]: its ``cell_area``, and zero outside
+    the grid's region (the ``in_region`` flag, when the Dataset has one)."""
+    area = ds["cell_area"]
+    if "in_region" in ds:
+        area = area.where(ds["in_region"] == 1, 0.0)
+    return area
 
 
 def _plain(v):

@@ -139,6 +139,13 @@ class FigureJob:
         return self.draw(*self.data, folder, **self.options)
 
 
+def shapely_wkb(geometry: Any) -> bytes:
+    """A shapely geometry in well-known binary (a figure job's data must pickle plainly)."""
+    import shapely
+
+    return bytes(shapely.to_wkb(geometry))
+
+
 def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = None
                 ) -> list[FigureJob]:
     """The figures a study asks for, from its coverage Dataset, in the order of their files.
@@ -172,8 +179,14 @@ def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = No
     named = {"requirement": mark, "study": study.name}
     metrics = list(study.maps.metrics)
     render_maps.get_projection(study.maps.projection)
+    from covergrid.render.place_maps import save_region_maps
+
     jobs = []
     cells = int(ds.sizes.get("lat", 0) * ds.sizes.get("lon", 0))
+    grid = study.grid
+    regional = grid.region is not None or not grid.full_circle
+    outline = None if grid.region is None else grid.region.outline()
+    outline_wkb = None if outline is None else bytes(shapely_wkb(outline))
     bounds = [n for n in ("lat_bnds", "lon_bnds") if n in ds]
     for metric in metrics:
         if metric in ds.data_vars and "k" in ds[metric].dims:
@@ -185,9 +198,15 @@ def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = No
             part = ds[[metric, *bounds]]
             if fold is not None:
                 part = part.sel(k=[fold])
+            name = f"map {metric}" + (f" k={fold}" if fold is not None else "")
+            if regional:
+                # a window or region of the globe: drawn on its own extent, with its outline
+                jobs.append(FigureJob(name, save_region_maps, (part, [metric]),
+                                      {"caption": caption, "k": fold,
+                                       "outline_wkb": outline_wkb, **named}, cells))
+                continue
             jobs.append(FigureJob(
-                f"map {metric}" + (f" k={fold}" if fold is not None else ""),
-                render_maps.save_metric_maps, (part, [metric]),
+                name, render_maps.save_metric_maps, (part, [metric]),
                 {"caption": caption, "projection": study.maps.projection, "k": fold,
                  **named}, cells))
 

@@ -192,7 +192,8 @@ def _civ(a_km, sensor: Sensor, cells: int, band_share: float) -> np.ndarray:
 def _footprint_rows(a_km, sensor: Sensor, study: ResolvedStudy) -> np.ndarray:
     """Latitude rows each satellite's coverage circle spans (at most the grid's rows)."""
     lam_deg = np.degrees(footprint_central_angle_rad(a_km, sensor))
-    return np.minimum(2.0 * lam_deg / study.grid.resolution_deg + 1.0, study.grid.n_lat)
+    return np.minimum(2.0 * lam_deg / study.grid.resolution_deg + 1.0,
+                      study.grid.cropped().n_lat)
 
 
 def _kernel_s(visits: float, row_samples: float, cells: float) -> float:
@@ -202,9 +203,32 @@ def _kernel_s(visits: float, row_samples: float, cells: float) -> float:
 
 
 def _band_share(study: ResolvedStudy) -> float:
-    """Share of the sphere's area between the grid's latitudes."""
-    g = study.grid
-    return 0.5 * (math.sin(math.radians(g.lat_max_deg)) - math.sin(math.radians(g.lat_min_deg)))
+    """Share of the sphere's area within the grid's computed window (latitudes and
+    longitudes; a region's cells outside its areas are counted, so the estimate errs high)."""
+    g = study.grid.cropped()
+    return (0.5 * (math.sin(math.radians(g.lat_max_deg)) - math.sin(math.radians(g.lat_min_deg)))
+            * g.n_lon / g.n_lon_circle)
+
+
+#: Bytes per pass of the pass list (eight float64 or int64 columns and two flags) and the
+#: events behind it, with the copies made while sorting and pairing (about three).
+TARGET_BYTES_PER_PASS = 3 * (8 * 8 + 2 + 2 * 4 * 8)
+#: Passes per satellite, target and day assumed by the estimate: a low satellite passes over
+#: a site at most about 15 times a day (one per orbit, common practice).
+TARGET_PASSES_PER_DAY = 15.0
+
+
+def _targets_bytes(study: ResolvedStudy, n_sat: int) -> int:
+    """Memory of the point targets: the per-pair state (compute.target_kernel.PAIR_COLUMNS
+    float64 per satellite and target) and the pass list (at most TARGET_PASSES_PER_DAY per
+    satellite, target and day; an upper bound)."""
+    if study.targets is None:
+        return 0
+    n_t = len(study.targets)
+    days = max(study.duration_s / 86400.0, 1.0 / 24.0)
+    pairs = 8 * 7 * n_sat * n_t  # compute.target_kernel.PAIR_COLUMNS = 7
+    passes = TARGET_PASSES_PER_DAY * days * n_sat * n_t * TARGET_BYTES_PER_PASS
+    return int(pairs + passes)
 
 
 def _figures_bytes(study: ResolvedStudy, n_sat: int, cells: int) -> int:
@@ -267,7 +291,8 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     study = as_resolved(study)
     elements = study.elements
     n_sat = len(elements.ids)
-    rows, cols = study.grid.n_lat, study.grid.n_lon
+    grid = study.grid.cropped()  # the window the engine computes
+    rows, cols = grid.n_lat, grid.n_lon
     cells = rows * cols
     k = study.nfold_max
     n_steps = study.n_steps
@@ -294,6 +319,7 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
         "workers": processes * WORKER_PROCESS_BYTES
                    + (int(_WORKER_RESULT_COPIES * out_bytes) if processes else 0),
         "figures": _figures_bytes(study, n_sat, cells) if maps else 0,
+        "targets": _targets_bytes(study, n_sat),
     }
     memory = sum(parts.values())
     row_samples = float(np.sum(_footprint_rows(elements.a_km, study.sensor, study))) * n_steps
@@ -372,7 +398,8 @@ def _check_memory(study: ResolvedStudy, est: dict[str, Any], what: str, force: b
     ways = {"figures": "pass --no-maps or use a coarser grid.resolution_deg (drawing the maps "
                        "of a fine grid needs the most), or set compute.workers: 1 (one process "
                        "draws)",
-            "workers": "use fewer compute.workers or compute.threads_per_worker"}.get(
+            "workers": "use fewer compute.workers or compute.threads_per_worker",
+            "targets": "use fewer targets or satellites, or a shorter span"}.get(
         _largest(parts), "use a coarser grid.resolution_deg, a smaller compute.chunk_rows or "
                          "a cluster (compute.scheduler)")
     raise ResourceError(
@@ -386,7 +413,8 @@ def _largest(parts: dict[str, int]) -> str:
 
 def _dominant_key(parts: dict[str, int], rows_key: str) -> str:
     """The study key behind the largest part of the memory estimate."""
-    return {"figures": "maps", "workers": "compute.workers", "rows": rows_key}.get(
+    return {"figures": "maps", "workers": "compute.workers", "rows": rows_key,
+            "targets": "targets"}.get(
         _largest(parts), "grid.resolution_deg")
 
 

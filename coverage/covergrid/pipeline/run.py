@@ -8,6 +8,8 @@ output folder, writes every output:
 
     DIR/<study>/coverage.nc           CF-1.8 netCDF of every metric
     DIR/<study>/summary.json, .csv    area-weighted global and per-band statistics, verdict
+    DIR/<study>/passes.csv            every pass over every point target (with targets)
+    DIR/<study>/targets.csv           per-target statistics (with targets)
     DIR/<study>/study.resolved.yaml   the study with every default filled in
     DIR/<study>/maps/...              figures (when maps are on)
     DIR/<study>/report.html           one self-contained document of all of it
@@ -62,18 +64,24 @@ class RunResult:
         The study's output folder, when outputs were written.
     files : list of pathlib.Path
         Every file written.
+    targets : dict or None
+        :func:`covergrid.compute.targets.evaluate_targets` result, with point targets.
     """
 
     dataset: Any
     summary: dict
     out_dir: Path | None = None
     files: list[Path] = field(default_factory=list)
+    targets: dict | None = None
 
     @property
     def requirement_met(self) -> bool | None:
-        """The verdict, or None when the study states no requirement."""
-        verdict = self.summary.get("requirement")
-        return None if verdict is None else bool(verdict["met"])
+        """The verdicts together (the grid's and the targets'), or None when the study
+        states no requirement."""
+        verdicts = [v for v in (self.summary.get("requirement"),
+                                (self.summary.get("targets") or {}).get("requirement"))
+                    if v is not None]
+        return None if not verdicts else all(bool(v["met"]) for v in verdicts)
 
 
 def resolve_for_run(study: Study | ResolvedStudy, scheduler: str | None = None) -> ResolvedStudy:
@@ -100,22 +108,28 @@ def resolve_for_run(study: Study | ResolvedStudy, scheduler: str | None = None) 
     return resolve(study)
 
 
-def summarise_study(study: ResolvedStudy, ds) -> dict[str, Any]:
-    """Summaries of a coverage Dataset with the study's band width and requirement."""
+def summarise_study(study: ResolvedStudy, ds, targets: dict | None = None) -> dict[str, Any]:
+    """Summaries of a coverage Dataset with the study's band width and requirement, and of
+    the point targets' statistics when given."""
     from covergrid.compute.metrics import MODEL_LIMITS
     from covergrid.compute.summary import summarise
 
     out = summarise(ds, band_width_deg=study.band_width_deg, requirement=study.requirement)
-    return {"study": study.name, "covergrid_version": __version__, "model_limits": MODEL_LIMITS,
-            **out}
+    summary = {"study": study.name, "covergrid_version": __version__,
+               "model_limits": MODEL_LIMITS, **out}
+    if targets is not None and study.targets is not None:
+        from covergrid.pipeline.target_outputs import target_summary
+
+        summary["targets"] = target_summary(study, targets)
+    return summary
 
 
 def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = True,
-                      summary: dict | None = None, report: bool = True
-                      ) -> tuple[list[Path], dict]:
+                      summary: dict | None = None, report: bool = True,
+                      targets: dict | None = None) -> tuple[list[Path], dict]:
     """Write every output file of a computed study into ``folder`` (a staging folder):
-    the data files, the figures (``maps``) and last ``report.html`` (``report``), which
-    embeds the figures written before it.
+    the data files (with point targets, their tables and variables), the figures (``maps``)
+    and last ``report.html`` (``report``), which embeds the figures written before it.
 
     Returns
     -------
@@ -125,23 +139,43 @@ def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = Tr
     from covergrid import io
     from covergrid.compute.summary import CSV_COLUMNS, summary_rows
 
-    summary = summarise_study(study, ds) if summary is None else summary
+    summary = summarise_study(study, ds, targets) if summary is None else summary
+    if targets is not None and study.targets is not None:
+        from covergrid.pipeline.target_outputs import target_dataset
+
+        ds = ds.merge(target_dataset(study, targets))
     files = [
         io.write_netcdf(ds, folder / "coverage.nc"),
         io.write_json(summary, folder / "summary.json"),
         io.write_csv(summary_rows(summary), folder / "summary.csv", CSV_COLUMNS),
         io.write_text(study.resolved_yaml, folder / "study.resolved.yaml"),
     ]
+    if targets is not None and study.targets is not None:
+        from covergrid.pipeline.target_outputs import write_target_tables
+
+        files += write_target_tables(study, targets, folder)
     if maps:
         from covergrid.pipeline.figures import write_figures
 
         files += write_figures(study, ds, folder, summary.get("requirement"))
+        if targets is not None and study.targets is not None:
+            from covergrid.pipeline.target_outputs import write_target_maps
+
+            files += write_target_maps(study, ds, targets, folder)
     if report:
         from covergrid.pipeline import report as run_report
 
+        tables: list[dict] = []
+        notes: list[str] = []
+        if targets is not None and study.targets is not None:
+            from covergrid.pipeline.target_outputs import report_parts
+
+            table, notes = report_parts(study, targets, summary)
+            tables.append(table)
         context = run_report.report_context(
             study, "run", files, folder, summary=summary,
-            verdict=run_report.run_verdict(summary.get("requirement")))
+            verdict=run_report.run_verdict(summary.get("requirement")), tables=tables,
+            notes=notes)
         files.append(run_report.write_report(folder, context))
     return files, summary
 
@@ -219,14 +253,30 @@ def run_study(study: Study | ResolvedStudy, out_dir: str | Path | None = None, *
     check_resources(resolved, maps=maps and out_dir is not None, force=force)
     if out_dir is None:
         ds = _compute(resolved, progress)
-        return RunResult(ds, summarise_study(resolved, ds))
+        targets = _compute_targets(resolved, progress)
+        return RunResult(ds, summarise_study(resolved, ds, targets), targets=targets)
     with io.ResultFolder(out_dir, resolved.name) as folder:  # taken before computing
         ds = _compute(resolved, progress)
-        summary = summarise_study(resolved, ds)
+        targets = _compute_targets(resolved, progress)
+        summary = summarise_study(resolved, ds, targets)
         files, summary = write_study_files(resolved, ds, folder.path, maps=maps,
-                                           summary=summary, report=report)
+                                           summary=summary, report=report,
+                                           targets=targets)
         files = [folder.final(f) for f in files]
-    return RunResult(ds, summary, folder.target, files)
+    return RunResult(ds, summary, folder.target, files, targets)
+
+
+def _compute_targets(resolved: ResolvedStudy, progress: bool) -> dict | None:
+    """The passes and statistics of the study's point targets, or None."""
+    if resolved.targets is None:
+        return None
+    from covergrid.compute.targets import evaluate_targets
+    from covergrid.earth.time import gmst_rad
+
+    return evaluate_targets(resolved.elements, float(gmst_rad(resolved.epoch, 0.0)),
+                            resolved.duration_s, resolved.step_s, resolved.targets,
+                            resolved.sensor, refine=resolved.refine_transitions,
+                            progress=progress)
 
 
 def _compute(resolved: ResolvedStudy, progress: bool):

@@ -1,7 +1,7 @@
 """Report-ready figures: metric maps, ground tracks, latitude profiles, trade charts.
 
 Importing this package is light: matplotlib and cartopy are imported only when a figure is drawn.
-Coastlines come from Natural Earth data bundled in ``render/data`` (see its ATTRIBUTION.md);
+Coastlines come from Natural Earth data bundled in ``earth/data`` (see its ATTRIBUTION.md);
 nothing is ever downloaded.
 """
 

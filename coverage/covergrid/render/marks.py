@@ -118,6 +118,8 @@ def requirement_mark(requirement, ds, verdict: Mapping[str, Any] | None = None
             da = da.sel(k=int(requirement.k))
         values = np.asarray(da.transpose("lat", "lon").values, dtype=float)
         fails = ~requirement.meets(values)
+        if "in_region" in ds:  # outside the region is not part of the area: never marked
+            fails &= np.asarray(ds["in_region"].transpose("lat", "lon").values) == 1
     return RequirementMark(
         metric=requirement.metric, k=requirement.k, sense=requirement.sense,
         threshold=float(requirement.threshold), area_fraction=float(requirement.area_fraction),

@@ -21,16 +21,19 @@ from typing import Any
 import numpy as np
 
 from covergrid.compute.grid import GridSpec
+from covergrid.compute.region import Region
 from covergrid.compute.requirement import Requirement
 from covergrid.compute.sensor import Sensor
 from covergrid.compute.span import count_steps
+from covergrid.compute.targets import Targets
 from covergrid.constants import DEG, WGS84_A_KM
 from covergrid.earth.time import parse_epoch
-from covergrid.errors import ElementError, StudyError
+from covergrid.errors import CovergridError, ElementError, StudyError
 from covergrid.orbits import walker as w
 from covergrid.orbits.element_set import ElementSet
 from covergrid.study.messages import format_path
 from covergrid.study.models import Study
+from covergrid.study.place_sections import TargetRequirementSection
 from covergrid.study.sections import GroupEntry, SatelliteEntry
 from covergrid.study.trade_sections import SizingSection, SweepSection
 
@@ -136,6 +139,10 @@ class ResolvedStudy:
         The trade blocks (their axes are already expanded lists).
     resolved_yaml : str
         The study with every default filled in (the provenance record).
+    targets : Targets or None
+        Point targets (evaluated exactly at each site).
+    target_requirement : TargetRequirementSection or None
+        The requirement over the targets.
     """
 
     name: str
@@ -158,6 +165,8 @@ class ResolvedStudy:
     sweep: SweepSection | None = None
     sizing: SizingSection | None = None
     resolved_yaml: str = field(default="", repr=False)
+    targets: Targets | None = None
+    target_requirement: TargetRequirementSection | None = None
 
     @property
     def n_satellites(self) -> int:
@@ -196,7 +205,7 @@ def resolve(study: Study) -> ResolvedStudy:
         metric=r.metric, at_most=r.at_most, at_least=r.at_least,
         area_fraction=r.area_fraction, k=r.k)
     elements = build_elements(study)
-    s, g, c = study.sensor, study.grid, study.compute
+    s, c = study.sensor, study.compute
     return ResolvedStudy(
         name=study.study,
         epoch=parse_epoch(study.epoch),
@@ -207,8 +216,7 @@ def resolve(study: Study) -> ResolvedStudy:
         elements=elements,
         sensor=Sensor(min_elevation_deg=s.min_elevation_deg,
                       max_off_nadir_deg=s.max_off_nadir_deg, max_range_km=s.max_range_km),
-        grid=GridSpec(resolution_deg=g.resolution_deg, lat_min_deg=g.lat_min_deg,
-                      lat_max_deg=g.lat_max_deg),
+        grid=_grid(study),
         nfold_max=nfold_max_of(len(elements), requirement),
         refine_transitions=study.refine_transitions,
         requirement=requirement,
@@ -222,7 +230,43 @@ def resolve(study: Study) -> ResolvedStudy:
         sweep=study.sweep,
         sizing=study.sizing,
         resolved_yaml=study.dump_resolved_yaml(),
+        targets=_targets(study),
+        target_requirement=None if study.targets is None else study.targets.requirement,
     )
+
+
+def _grid(study: Study) -> GridSpec:
+    """The study's grid: its extent and region (the engine computes its cropped window,
+    :meth:`covergrid.compute.grid.GridSpec.cropped`, found here once so that a region
+    without cells is refused before anything runs).
+
+    Raises
+    ------
+    StudyError
+        Naming ``region`` when no cell centre lies in the region.
+    """
+    g, r = study.grid, study.region
+    region = None if r is None else Region(areas_wkb=r.areas_wkb, surface=r.surface,
+                                           label=r.title())
+    spec = GridSpec(resolution_deg=g.resolution_deg, lat_min_deg=g.lat_min_deg,
+                    lat_max_deg=g.lat_max_deg, lon_min_deg=g.lon_min_deg,
+                    lon_max_deg=g.lon_max_deg, region=region)
+    try:
+        spec.cropped()
+    except CovergridError as exc:
+        raise StudyError(str(exc).partition(": ")[2] or str(exc),
+                         field=exc.field or "region") from None
+    return spec
+
+
+def _targets(study: Study) -> Targets | None:
+    """The study's point targets, or None."""
+    if study.targets is None:
+        return None
+    e = study.targets.entries
+    return Targets(names=tuple(t.name for t in e), lat_deg=tuple(t.lat_deg for t in e),
+                   lon_deg=tuple(t.lon_deg for t in e),
+                   altitude_m=tuple(t.altitude_m for t in e))
 
 
 def _walker_template(study: Study) -> WalkerTemplate | None:

@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import os
 import re
-import stat
 from pathlib import Path
 from typing import Any
 
@@ -23,6 +22,7 @@ import yaml
 from pydantic import ValidationError
 
 from covergrid.errors import StudyError
+from covergrid.study.input_files import InputFileError, read_input_file
 from covergrid.study.messages import show_value, study_error_from
 from covergrid.study.models import Study
 from covergrid.study.sections import metric_names
@@ -203,8 +203,12 @@ def parse_yaml(text: str, source: str = "study file") -> Any:
         loader.dispose()
 
 
-def parse_study(data: Any, source: str = "study file") -> Study:
+def parse_study(data: Any, source: str = "study file",
+                base_dir: str | os.PathLike | None = None) -> Study:
     """Validate plain data (as read from YAML) into a :class:`Study`.
+
+    Files the study names (a region's GeoJSON, a targets CSV) are relative to ``base_dir``
+    (the study file's folder; default the current folder).
 
     Raises
     ------
@@ -222,7 +226,8 @@ def parse_study(data: Any, source: str = "study file") -> Study:
         raise StudyError(f"top-level keys must be text; got {show_value(bad_keys[0])}",
                          field=source)
     try:
-        return Study.model_validate(data)
+        return Study.model_validate(
+            data, context={"base_dir": None if base_dir is None else Path(base_dir)})
     except ValidationError as exc:
         raise study_error_from(exc, Study) from None
 
@@ -256,45 +261,22 @@ def load_study(path: str | Path) -> Study:
                          "allowed: UTF-8 text; save the file as UTF-8", field=name) from None
     if text.startswith("\ufeff"):
         text = text[1:]
-    return parse_study(parse_yaml(text, source=name), source=name)
+    return parse_study(parse_yaml(text, source=name), source=name, base_dir=path.parent)
 
 
 def read_study_file(path: str | os.PathLike) -> bytes:
-    """The bytes of a study file: a regular file of at most MAX_STUDY_FILE_BYTES.
-
-    The file is opened without blocking and checked before it is read, so a device
-    (``/dev/zero``), a pipe or a socket is refused instead of read without end.
+    """The bytes of a study file: a regular file of at most MAX_STUDY_FILE_BYTES
+    (:func:`covergrid.study.input_files.read_input_file`).
 
     Raises
     ------
     StudyError
         Naming the path: missing, a folder, not a regular file, too large or unreadable.
     """
-    where = str(path)
     try:
-        fd = os.open(path, os.O_RDONLY | os.O_NONBLOCK | getattr(os, "O_CLOEXEC", 0))
-    except FileNotFoundError:
-        raise StudyError("no such file", field=where) from None
-    except IsADirectoryError:
-        raise StudyError("is a folder, not a study file", field=where) from None
-    except OSError as exc:
-        raise StudyError(f"cannot read: {exc.strerror or exc}", field=where) from None
-    mode = os.fstat(fd).st_mode
-    if not stat.S_ISREG(mode):
-        os.close(fd)
-        if stat.S_ISDIR(mode):
-            raise StudyError("is a folder, not a study file", field=where)
-        raise StudyError("is not a regular file (a device, pipe or socket); allowed: a "
-                         "study file", field=where)
-    with os.fdopen(fd, "rb") as fh:
-        try:
-            raw = fh.read(MAX_STUDY_FILE_BYTES + 1)
-        except OSError as exc:
-            raise StudyError(f"cannot read: {exc.strerror or exc}", field=where) from None
-    if len(raw) > MAX_STUDY_FILE_BYTES:
-        raise StudyError(f"is larger than {MAX_STUDY_FILE_BYTES // 2**20} MiB; allowed: study "
-                         f"files of at most {MAX_STUDY_FILE_BYTES // 2**20} MiB", field=where)
-    return raw
+        return read_input_file(path, "a study file", MAX_STUDY_FILE_BYTES)
+    except InputFileError as exc:
+        raise StudyError(exc.reason, field=str(path)) from None
 
 
 def export_schema() -> dict:
@@ -331,4 +313,4 @@ def with_overrides(study: Study, overrides: dict[str, Any], source: str) -> Stud
                 node[part] = {}
             node = node[part]
         node[key] = value
-    return parse_study(data, source=source)
+    return parse_study(data, source=source)  # its files are inlined: no folder needed

@@ -19,6 +19,7 @@ from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError
 from covergrid.orbits.walker import count_walker_options
 from covergrid.study.messages import Problems, format_path, reason_of
+from covergrid.study.place_sections import RegionSection, TargetsSection
 from covergrid.study.sections import (
     NAME_RE,
     ComputeSection,
@@ -61,6 +62,10 @@ class Study(SectionModel):
     sensor: SensorSection = Field(default_factory=lambda: SensorSection.model_validate({}))
     grid: GridSection = Field(default_factory=lambda: GridSection.model_validate({}))
     requirement: RequirementSection | None = None
+    region: RegionSection | None = Field(
+        None, description="Compute only the cells in GeoJSON areas and/or on land or sea.")
+    targets: TargetsSection | None = Field(
+        None, description="Point targets evaluated exactly at each site.")
     maps: MapsSection = Field(default_factory=lambda: MapsSection.model_validate({}))
     compute: ComputeSection = Field(default_factory=lambda: ComputeSection.model_validate({}))
     output: OutputSection = Field(default_factory=lambda: OutputSection.model_validate({}))
@@ -182,8 +187,22 @@ class Study(SectionModel):
         return sum(g.count for g in self.constellation)
 
     def resolved_dict(self) -> dict:
-        """The study with every default filled in, as plain data."""
-        return self.model_dump(mode="json")
+        """The study with every default filled in, as plain data; the files it names are
+        inlined (the region's areas as one GeoJSON geometry, the targets as sites), so the
+        record stands alone wherever it is read."""
+        data = self.model_dump(mode="json")
+        if self.region is not None and self.region.areas_wkb is not None:
+            import json
+
+            import shapely
+
+            geometry = shapely.from_wkb(self.region.areas_wkb)
+            data["region"]["geojson"] = [json.loads(shapely.to_geojson(geometry))]
+        if self.targets is not None and self.targets.file is not None:
+            data["targets"]["file"] = None
+            data["targets"]["sites"] = [t.model_dump(mode="json")
+                                        for t in self.targets.entries]
+        return data
 
     def dump_resolved_yaml(self) -> str:
         """The resolved study as YAML text (the provenance record written beside outputs)."""

@@ -398,6 +398,10 @@ class GridSection(SectionModel):
     resolution_deg: float = Field(2.0, ge=0.05, le=30.0, description="Cell size [deg].")
     lat_min_deg: float = Field(-90.0, ge=-90.0, le=90.0, description="Southern edge [deg].")
     lat_max_deg: float = Field(90.0, ge=-90.0, le=90.0, description="Northern edge [deg].")
+    lon_min_deg: float = Field(-180.0, ge=-180.0, le=180.0,
+                               description="Western edge [deg]; above lon_max_deg the "
+                               "window crosses the antimeridian.")
+    lon_max_deg: float = Field(180.0, ge=-180.0, le=180.0, description="Eastern edge [deg].")
 
     @model_validator(mode="after")
     def _check(self) -> GridSection:
@@ -405,7 +409,8 @@ class GridSection(SectionModel):
             raise Problems([(("lat_min_deg",), f"must be less than lat_max_deg = "
                               f"{self.lat_max_deg}", self.lat_min_deg)])
         try:
-            grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg)
+            grid_shape(self.resolution_deg, self.lat_min_deg, self.lat_max_deg,
+                       self.lon_min_deg, self.lon_max_deg)
         except CovergridError as exc:
             key = (exc.field or "grid.resolution_deg").rpartition(".")[2]
             text = str(exc).partition(": ")[2] if exc.field else str(exc)

@@ -14,7 +14,7 @@ from typing import Any
 
 from covergrid.compute.engine import compute_coverage
 from covergrid.compute.metrics import METRICS
-from covergrid.compute.summary import area_statistics
+from covergrid.compute.summary import area_statistics, region_area
 from covergrid.trade.designs import EvalContext, WalkerDesign
 
 __all__ = ["DESIGN_COLUMNS", "STATISTICS", "VERDICT_COLUMNS", "evaluate_design", "row_columns",
@@ -33,7 +33,7 @@ VERDICT_COLUMNS = ("meets", "achieved", "margin", "area_fraction_met")
 
 def statistics_row(ds) -> dict[str, float]:
     """``<metric>_<statistic>`` (and ``nfold_fraction_k<k>_<statistic>``) of a Dataset."""
-    area = ds["cell_area"].transpose("lat", "lon").values
+    area = region_area(ds).transpose("lat", "lon").values  # zero outside the region
     row: dict[str, float] = {}
     for name in METRICS:
         var = ds[name]

@@ -50,6 +50,7 @@ evaluation), ``store/`` (per-design records, shared with ``covergrid sweep``) an
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 from dataclasses import dataclass, field, replace
@@ -57,7 +58,6 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from covergrid import __version__, io
-from covergrid.compute.grid import GridSpec
 from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError, StudyError
 from covergrid.orbits.walker import walker_options
@@ -105,7 +105,7 @@ def _default_coarse(study: ResolvedStudy) -> tuple[float, float]:
     g = study.grid
     res = g.resolution_deg
     try:
-        GridSpec(resolution_deg=2 * res, lat_min_deg=g.lat_min_deg, lat_max_deg=g.lat_max_deg)
+        dataclasses.replace(g, resolution_deg=2 * res).cropped()  # same extent and region
         if 2 * res <= 30.0:
             res = 2 * res
     except ValueError:
@@ -136,10 +136,11 @@ def coarse_context(study: ResolvedStudy | Study) -> EvalContext:
     step = c.step_s if c.step_s is not None else step0
     g = study.grid
     try:
-        GridSpec(resolution_deg=res, lat_min_deg=g.lat_min_deg, lat_max_deg=g.lat_max_deg)
+        dataclasses.replace(g, resolution_deg=res).cropped()  # same extent and region
     except CovergridError as exc:
         raise StudyError(f"{res!r} deg does not fit the grid ({exc}); allowed: a cell size "
-                         "that divides 360 deg and the latitude span",
+                         "that divides 360 deg, the latitude span and the longitude window, "
+                         "with a cell of the region",
                          field="sizing.coarse.resolution_deg") from None
     try:
         count_steps(study.duration_s, step)

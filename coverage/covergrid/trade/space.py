@@ -8,10 +8,10 @@ fingerprint of the result store) and writes the caption of the trade figures.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
-from covergrid.compute.grid import GridSpec
 from covergrid.compute.metrics import METRICS
 from covergrid.compute.quantities import requirement_text
 from covergrid.errors import StudyError
@@ -32,9 +32,8 @@ def evaluation_context(study: ResolvedStudy | Study, *, resolution_deg: float | 
     """The study's evaluation context, optionally with another grid cell size or step."""
     study = as_resolved(study)
     g = study.grid
-    grid = g if resolution_deg is None else GridSpec(
-        resolution_deg=float(resolution_deg), lat_min_deg=g.lat_min_deg,
-        lat_max_deg=g.lat_max_deg)
+    grid = g if resolution_deg is None else dataclasses.replace(
+        g, resolution_deg=float(resolution_deg))  # same extent and region
     return EvalContext(epoch=study.epoch_iso, duration_s=float(study.duration_s),
                        step_s=float(step_s if step_s is not None else study.step_s),
                        grid=grid, sensor=study.sensor, nfold_max=int(study.nfold_max),

@@ -54,6 +54,8 @@ def _canonical(obj: Any) -> Any:
             return repr(obj)
         # integral floats and ints hash alike (altitude 550 and 550.0 are one design)
         return int(obj) if obj.is_integer() and abs(obj) < 2**53 else repr(obj)
+    if isinstance(obj, bytes):  # a region's areas (well-known binary): by their digest
+        return "sha256:" + hashlib.sha256(obj).hexdigest()
     if hasattr(obj, "item"):  # numpy scalar
         return _canonical(obj.item())
     raise TypeError(f"cannot hash a {type(obj).__name__} into a result key")
