@@ -16,6 +16,7 @@ traceback is shown unless ``--debug`` is given.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import json
 import math
 import signal
@@ -337,17 +338,19 @@ def _cmd_check(args: argparse.Namespace) -> int:
     est = estimate(resolved)
     blocks = [b for b in ("sweep", "sizing") if getattr(resolved, b) is not None]
     trades = {b: estimate_trade(resolved, b) for b in blocks}
+    derived = [dataclasses.asdict(d) for d in resolved.derived]
     if args.json:
-        print(json.dumps(json_safe({**est, **trades}), indent=2, allow_nan=False))
+        print(json.dumps(json_safe({**est, **trades, "derived": derived}), indent=2,
+                         allow_nan=False))
     else:
-        print(_estimate_text(study, est, trades))
+        print(_estimate_text(study, est, trades, derived))
     check_resources(resolved, est)
     for b in blocks:
         check_trade_resources(resolved, b)
     return EXIT_OK
 
 
-def _estimate_text(study, est: dict, trades: dict) -> str:
+def _estimate_text(study, est: dict, trades: dict, derived: list[dict]) -> str:
     from covergrid.pipeline.resources import format_bytes, format_seconds
 
     def gb(n):
@@ -363,8 +366,9 @@ def _estimate_text(study, est: dict, trades: dict) -> str:
         if g.walker is not None:
             w, t = g.walker, g.template
             alt = t.a_km - 6378.137
+            sso = " (sun-synchronous)" if t.sun_synchronous else ""
             groups.append(f"Walker {w.pattern} {w.total}/{w.planes}/{w.phasing} at "
-                          f"{alt:.0f} km, {t.inclination_deg:g} deg")
+                          f"{alt:.0f} km, {t.inclination_value_deg:.4g} deg{sso}")
         else:
             groups.append(f"{len(g.satellites)} listed satellite(s)")
     s = study.sensor
@@ -390,6 +394,9 @@ def _estimate_text(study, est: dict, trades: dict) -> str:
         f"{format_seconds(est['compute_s'])}, figures {format_seconds(est['figures_s'])})",
         f"  memory          {memory(est)}",
     ]
+    for d in derived:
+        lines.append(f"  derived         {d['path']} = {d['value']:.4f} {d['unit']} "
+                     f"({d['how']})")
     if study.requirement is not None:
         r = study.requirement
         sense = ("at most", r.at_most) if r.at_most is not None else ("at least", r.at_least)

@@ -40,7 +40,7 @@ from covergrid.pipeline.figures import (
     TRACK_SAMPLES,
     figure_processes_at_most,
 )
-from covergrid.study.build import as_resolved
+from covergrid.study.build import as_resolved, trade_orbits
 
 if TYPE_CHECKING:
     from covergrid.study.build import ComputeOptions, ResolvedStudy
@@ -409,13 +409,13 @@ def check_resources(study: ResolvedStudy | Study, est: dict[str, Any] | None = N
 
 # --- trades -----------------------------------------------------------------------------
 def _trade_space(study: ResolvedStudy, block: str):
-    """(altitudes, inclinations, elevations, totals, counts) of a sweep or sizing block."""
+    """(orbits, elevations, totals, counts) of a sweep or sizing block: the (altitude,
+    inclination) pairs (:func:`covergrid.study.build.trade_orbits`), the elevations, and
+    the Walker totals with their pattern counts."""
     t = study.walker
     if block == "sweep":
         sw = study.sweep
         assert sw is not None and t is not None
-        alts = sw.altitude_km or [t.altitude_km]
-        incs = sw.inclination_deg or [t.inclination_deg]
         els = sw.min_elevation_deg or [study.sensor.min_elevation_deg]
         planes = sw.planes if sw.planes is not None else [t.planes]
         phasing = sw.phasing if sw.phasing is not None else [t.phasing]
@@ -423,11 +423,10 @@ def _trade_space(study: ResolvedStudy, block: str):
     else:
         sz = study.sizing
         assert sz is not None
-        alts, incs = sz.altitude_km, sz.inclination_deg
         els = [study.sensor.min_elevation_deg]
         totals, counts = walker_option_counts(range(sz.total.min, sz.total.max + 1),
                                               sz.planes, sz.phasing)
-    return sorted(set(alts)), sorted(set(incs)), sorted(set(els)), totals, counts
+    return trade_orbits(study, block), sorted(set(els)), totals, counts
 
 
 def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
@@ -448,7 +447,7 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         ``largest_total``.
     """
     study = as_resolved(study)
-    alts, incs, els, totals, counts = _trade_space(study, block)
+    orbits, els, totals, counts = _trade_space(study, block)
     cells = study.grid.n_cells
     coarse = study.sizing.coarse if block == "sizing" and study.sizing is not None else None
     if coarse is not None and study.sizing is not None and study.sizing.prune \
@@ -459,12 +458,12 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         cells = max(cells, rows * round(360.0 / coarse.resolution_deg))
     band_share = _band_share(study)
     sensors = [dataclasses.replace(study.sensor, min_elevation_deg=el) for el in els]
-    a_km = np.array([WGS84_A_KM + a for a in alts])
+    # one entry per (altitude, inclination): the work depends on the altitude only
+    a_km = np.array([WGS84_A_KM + a for a, _ in orbits])
     cells_civ = sum(float(np.sum(_civ(a_km, s, cells, band_share))) for s in sensors)
     rows_sum = sum(float(np.sum(_footprint_rows(a_km, s, study))) for s in sensors)
-    n_points = len(incs)  # designs per (altitude, elevation, pattern)
-    designs = len(alts) * len(incs) * len(els) * int(counts.sum())
-    satellites_sum = n_points * float(np.sum(totals * counts))  # per (alt, el)
+    designs = len(orbits) * len(els) * int(counts.sum())
+    satellites_sum = float(np.sum(totals * counts))  # per (orbit, elevation)
     visits = cells_civ * band_share * study.n_steps * satellites_sum
     row_samples = rows_sum * study.n_steps * satellites_sum
     evaluations = designs
@@ -476,7 +475,7 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         visits *= 2 if sz.prune else 1
         row_samples *= 2 if sz.prune else 1
         if sz.robust_to_one_loss:  # at most T single losses per design, at one total
-            evaluations += len(alts) * len(incs) * int((counts * totals).max(initial=0))
+            evaluations += len(orbits) * int((counts * totals).max(initial=0))
     tasks, processes, remote = concurrency(study.compute)
     k = study.nfold_max
     out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k)

@@ -16,11 +16,13 @@ import yaml
 from pydantic import Field, field_validator, model_validator
 
 from covergrid.compute.span import count_steps
+from covergrid.constants import WGS84_A_KM
 from covergrid.errors import CovergridError
 from covergrid.orbits.walker import count_walker_options
 from covergrid.study.messages import Problems, format_path, reason_of
 from covergrid.study.sections import (
     NAME_RE,
+    SUN_SYNCHRONOUS,
     ComputeSection,
     GridSection,
     GroupEntry,
@@ -30,6 +32,7 @@ from covergrid.study.sections import (
     SectionModel,
     SensorSection,
     orbit_size_problems,
+    sun_synchronous_inclination_deg,
     text_id,
 )
 from covergrid.study.trade_sections import (
@@ -228,19 +231,29 @@ def _trade_problems(study: Study) -> list[tuple[tuple, str, Any]]:
                              "(walker + template): the sweep substitutes its values into it",
                              None))
         else:
-            problems += _altitude_problems("sweep", study.sweep.altitude_km, e)
+            sso = (study.sweep.inclination_deg == SUN_SYNCHRONOUS
+                   or (study.sweep.inclination_deg is None and group.template.sun_synchronous))
+            problems += _altitude_problems("sweep", study.sweep.altitude_km, e, sso)
             problems += _sweep_size_problems(study.sweep, group)
     if study.sizing is not None:
-        problems += _altitude_problems("sizing", study.sizing.altitude_km, e)
+        problems += _altitude_problems("sizing", study.sizing.altitude_km, e,
+                                       study.sizing.inclination_deg == SUN_SYNCHRONOUS)
         problems += _sizing_size_problems(study.sizing)
     return problems
 
 
-def _altitude_problems(block: str, altitudes, e: float) -> list[tuple[tuple, str, Any]]:
+def _altitude_problems(block: str, altitudes, e: float, sso: bool = False
+                       ) -> list[tuple[tuple, str, Any]]:
     """Each altitude of a trade block with the template's eccentricity: perigee above the
-    surface, apogee inside the sphere of influence (the first bad one is reported)."""
+    surface, apogee inside the sphere of influence, and with ``sso`` a sun-synchronous
+    inclination (the first bad one is reported)."""
     for i, alt in enumerate(altitudes or []):
         found = orbit_size_problems(alt, None, e, size_key="altitude_km")
+        if not found and sso:
+            try:
+                sun_synchronous_inclination_deg(WGS84_A_KM + alt, e)
+            except Problems as exc:
+                found = exc.problems
         if found:
             (_, text, _), = found
             where = ("" if e == 0 else
