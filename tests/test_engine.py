@@ -11,7 +11,7 @@ import xarray as xr
 
 from covergrid.compute.engine import compute_coverage
 from covergrid.compute.grid import GridSpec, row_bands
-from covergrid.compute.metrics import METRICS
+from covergrid.compute.metrics import INTEGER_METRICS, METRICS
 from covergrid.compute.sensor import Sensor
 from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError
@@ -207,21 +207,28 @@ def test_position_blocks_do_not_change_results(monkeypatch):
     monkeypatch.setattr(span, "POSITION_BLOCK_BYTES", 24 * len(el) * 7)  # 7 samples
     many = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous")
     # The propagator advances its angles by recurrence within one call, so positions from
-    # other block boundaries differ in the last bits (~1e-12 relative): sampled values are
-    # identical, refined crossing times agree to far below a millisecond. (Within one study
-    # the blocks depend only on the number of satellites, so schedulers and latitude chunks
-    # still give bit-identical results: see the tests above.)
-    refined = {"max_gap", "mean_gap", "time_average_gap", "mean_response_time"}
+    # other block boundaries differ in the last bits (~1e-12 relative): counts are
+    # identical, and every time (all metrics are integrals over refined crossing times)
+    # agrees to far below a millisecond. (Within one study the blocks depend only on the
+    # number of satellites, so schedulers and latitude chunks still give bit-identical
+    # results: see the tests above.)
     for name in many.data_vars:
-        if name in refined:
+        if name in INTEGER_METRICS:
+            xr.testing.assert_identical(many[name], one[name])
+        else:
             np.testing.assert_allclose(many[name], one[name], rtol=1e-9, atol=1e-6,
                                        err_msg=name)
-        else:
-            xr.testing.assert_identical(many[name], one[name])
+    sampled = {"refine_transitions": False}
+    one = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous",
+                           **sampled)
+    monkeypatch.setattr(span, "POSITION_BLOCK_BYTES", 24 * len(el) * 5)
+    many = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor,
+                            scheduler="synchronous", **sampled)
+    xr.testing.assert_identical(many.drop_attrs(), one.drop_attrs())  # sampled: identical
 
 
 def test_event_queue_overflow_is_counted_and_the_band_recomputed(monkeypatch):
-    """A kernel event queue too short for one sample's gap boundaries never drops an event
+    """A kernel event queue too short for one sample's events never drops an event
     silently: the overflow is counted and the band computed again with a longer queue, so
     the Dataset equals a run whose queue was long enough from the start."""
     from covergrid.compute import kernel_state
@@ -231,7 +238,8 @@ def test_event_queue_overflow_is_counted_and_the_band_recomputed(monkeypatch):
     real = kernel_state.new_state
     asked: list[int] = []
 
-    def first_queue_empty(n_cells, nfold_max, n_sat, n_rows, queue_per_cell=2):
+    def first_queue_empty(n_cells, nfold_max, n_sat, n_rows,
+                          queue_per_cell=kernel_state.QUEUE_PER_CELL):
         asked.append(queue_per_cell)
         # the first attempt gets no room at all for events
         return real(n_cells, nfold_max, n_sat, n_rows, queue_per_cell if len(asked) > 1 else 0)
@@ -240,5 +248,6 @@ def test_event_queue_overflow_is_counted_and_the_band_recomputed(monkeypatch):
     monkeypatch.setattr(kernel_state, "new_state", first_queue_empty)
     got = compute_coverage(el, EPOCH, 3 * 3600.0, 60.0, grid, sensor, scheduler="synchronous",
                            chunk_rows=grid.n_lat)
-    assert asked == [2, 8]  # one retry, with a queue four times longer
+    first = kernel_state.QUEUE_PER_CELL
+    assert asked == [first, 4 * first]  # one retry, with a queue four times longer
     xr.testing.assert_identical(got.drop_attrs(), ref.drop_attrs())

@@ -275,14 +275,16 @@ def test_numba_and_numpy_agree_on_irregular_long_grid():
 def test_backend_argument_selects_numpy_and_numba_is_the_default(monkeypatch):
     # One numba policy: numba is required and the default; the NumPy implementation is
     # reached only by asking for it (it was once also selected by an environment variable).
+    from covergrid.orbits import j2_backends
+
     calls = []
-    real = j2.run_numpy
+    real = j2_backends.run_numpy
 
     def spy(*args):
         calls.append(1)
         return real(*args)
 
-    monkeypatch.setattr(j2, "run_numpy", spy)
+    monkeypatch.setattr(j2_backends, "run_numpy", spy)
     els = _mixed_set(8)
     j2.positions(els, [0.0, 60.0], backend="numpy")
     assert calls == [1]
@@ -363,3 +365,55 @@ def test_velocity_neglects_only_the_drift_rates():
     assert np.all(gap <= bound + FD_ERROR_KM_S)
     assert np.all(gap > 1e-4)  # ~0.1 m/s or more: the O(J2) drift part is really left out
     assert np.all(bound < 0.02)  # "a few m/s" in LEO, as documented
+
+
+# Five-point central differences with h = 0.5 s: truncation ~ h^4 |r^(5)| / 30, below
+# 1e-12 km/s in LEO and for the eccentric orbits here; rounding ~ 1e-16 * |r| / h ~ 1e-11.
+FIVE_POINT_ERROR_KM_S = 1e-9
+
+
+def _five_point(f, t, h=0.5):
+    return (8.0 * (f(t + h) - f(t - h)) - (f(t + 2 * h) - f(t - 2 * h))) / (12.0 * h)
+
+
+@pytest.mark.parametrize("backend", ["numba", "numpy"])
+def test_ecef_velocity_is_the_derivative_of_the_ecef_position(backend):
+    # the coverage kernel interpolates positions between samples with these rates (cubic
+    # Hermite), so they must be the derivative of the modelled trajectory itself, drift of
+    # node, perigee and mean anomaly and Earth rotation included
+    els = _mixed_set(12)
+    t = np.linspace(0.0, DAY_S, 37)
+    theta0 = 1.3
+    r, v = j2.propagate_to_ecef_with_velocity(els, t, theta0, backend=backend)
+    np.testing.assert_array_equal(r, j2.propagate_to_ecef(els, t, theta0, backend=backend))
+    v_fd = _five_point(lambda tt: j2.propagate_to_ecef(els, tt, theta0, backend=backend), t)
+    np.testing.assert_allclose(v, v_fd, rtol=0, atol=FIVE_POINT_ERROR_KM_S)
+
+
+def test_ecef_velocity_follows_the_rotating_frame_rule():
+    # v_EF = R3(theta) v_I - omega_E x r_EF (Vallado, Fundamentals of Astrodynamics and
+    # Applications, 4th ed., sec. 3.7; from memory), with v_I the derivative of the
+    # inertial position (differenced here)
+    from covergrid.earth.frames import eci_to_ecef
+
+    els = _mixed_set(8)
+    t = np.linspace(0.0, 6 * 3600.0, 13)
+    theta0 = 0.4
+    r, v = j2.propagate_to_ecef_with_velocity(els, t, theta0)
+    theta = theta0 + OMEGA_EARTH_RAD_S * t
+    v_i = _five_point(lambda tt: j2.positions(els, tt), t)
+    omega_x_r = OMEGA_EARTH_RAD_S * np.stack([-r[..., 1], r[..., 0], np.zeros_like(r[..., 0])],
+                                             axis=-1)
+    expected = eci_to_ecef(v_i, theta[None, :]) - omega_x_r
+    np.testing.assert_allclose(v, expected, rtol=0, atol=FIVE_POINT_ERROR_KM_S)
+
+
+def test_ecef_velocity_buffers():
+    els = _mixed_set(3)
+    t = np.arange(6.0)
+    r_buf = np.full((3, 6, 3), np.nan)
+    v_buf = np.full((3, 6, 3), np.nan)
+    r, v = j2.propagate_to_ecef_with_velocity(els, t, 0.2, out=r_buf, out_v=v_buf)
+    assert r is r_buf and v is v_buf and np.all(np.isfinite(v_buf))
+    with pytest.raises(CovergridError, match="out_v"):
+        j2.propagate_to_ecef_with_velocity(els, t, 0.2, out_v=np.empty((3, 5, 3)))

@@ -42,7 +42,7 @@ def band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     (:func:`covergrid.compute.kernel_state.queue_overflow`), the band is computed again with a
     queue four times longer, so no event is lost.
     """
-    queue_per_cell = 2
+    queue_per_cell = kernel_state.QUEUE_PER_CELL
     while True:
         state = _run_band(elements, theta0_rad, step_s, n_steps, grid_spec, rows, sensor,
                           nfold_max, refine, queue_per_cell)
@@ -75,20 +75,33 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     n_sat = len(elements.a_km)
     state = kernel_state.new_state(n_rows * n_lon, nfold_max, n_sat, n_rows, queue_per_cell)
     el_min, eta_max, range_max = sensor.kernel_args()
-    block = position_block_length(n_sat, n_steps)
+    # continuous time needs the end of the span as a sample too (the last step's crossings)
+    n_samples = n_steps + 1 if refine else n_steps
+    block = position_block_length(n_sat, n_samples, with_velocity=refine)
     buf = np.empty((n_sat, block, 3))
+    vbuf = np.empty((n_sat, block, 3)) if refine else None
     lon0 = math.radians(-180.0)
     dlon = math.radians(grid_spec.resolution_deg)
-    for i0 in range(0, n_steps, block):
-        nb = min(block, n_steps - i0)
+    for i0 in range(0, n_samples, block):
+        nb = min(block, n_samples - i0)
         t = (i0 + np.arange(nb)) * step_s
         # the last, shorter block reuses the front of the same buffer (contiguous view)
-        out = buf if nb == block else buf.reshape(-1)[: n_sat * nb * 3].reshape(n_sat, nb, 3)
-        pos = j2.propagate_to_ecef(elements, t, theta0_rad, out=out)
+        out = _front(buf, nb)
+        if vbuf is not None:
+            pos, vel = j2.propagate_to_ecef_with_velocity(elements, t, theta0_rad, out=out,
+                                                          out_v=_front(vbuf, nb))
+        else:
+            pos, vel = j2.propagate_to_ecef(elements, t, theta0_rad, out=out), None
         kernel.run_band(state, pos, i0, geo, lon0, dlon, n_lon, el_min, eta_max, range_max,
-                        refine)
+                        refine, vel, step_s)
     kernel.close_band(state, n_steps)
     return state
+
+
+def _front(buf: np.ndarray, nb: int) -> np.ndarray:
+    """The first nb samples of an (n_sat, block, 3) buffer as a contiguous view."""
+    n_sat, block, _ = buf.shape
+    return buf if nb == block else buf.reshape(-1)[: n_sat * nb * 3].reshape(n_sat, nb, 3)
 
 
 #: Metrics on (lat, lon), in the order of a band task's output stack.
@@ -161,11 +174,11 @@ def compute_coverage(
     compute : bool, optional
         If False return the lazy, dask-backed Dataset.
     refine_transitions : bool, optional
-        Place each gap's start and end at the time the limit was crossed between two samples
-        (linear interpolation of the visibility margin of the satellite concerned) instead of
-        at the sample after it. Affects max_gap, mean_gap, time_average_gap and
-        mean_response_time only; see :mod:`covergrid.compute.metrics`. False gives the pure sampled
-        values.
+        Continuous time (the default): every rise and set of a satellite over a cell at the
+        time its limit is crossed between samples, passes that begin and end between two
+        samples included, and every metric an integral over those times; the span's end is
+        then a sample too. False gives the pure sampled values (sample and hold). See
+        :mod:`covergrid.compute.metrics`.
 
     Returns
     -------

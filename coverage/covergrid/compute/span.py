@@ -75,6 +75,8 @@ def count_steps(duration_s: float, step_s: float, *, field: str = "step_s") -> i
 POSITION_BLOCK_BYTES = 16 * 2**20
 
 
-def position_block_length(n_sat: int, n_steps: int) -> int:
-    """Samples per propagated block: the position buffer stays near POSITION_BLOCK_BYTES."""
-    return max(1, min(n_steps, POSITION_BLOCK_BYTES // (24 * max(n_sat, 1))))
+def position_block_length(n_sat: int, n_steps: int, with_velocity: bool = False) -> int:
+    """Samples per propagated block: the position buffer (and the velocity buffer, when the
+    kernel works in continuous time) stays near POSITION_BLOCK_BYTES together."""
+    per_sample = (48 if with_velocity else 24) * max(n_sat, 1)
+    return max(1, min(n_steps, POSITION_BLOCK_BYTES // per_sample))

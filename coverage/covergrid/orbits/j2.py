@@ -30,6 +30,7 @@ __all__ = [
     "propagate",
     "positions",
     "propagate_to_ecef",
+    "propagate_to_ecef_with_velocity",
 ]
 
 _ELEMENT_FIELDS = ("a_km", "e", "i_rad", "raan_rad", "argp_rad", "M_rad")
@@ -211,24 +212,15 @@ def _propagate(
     want_v: bool,
     backend: str | None,
     out: np.ndarray | None = None,
+    rate_terms: bool = False,
+    out_v: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray | None]:
     els = _element_arrays(elements)
     t = _times(t_s)
     shape = (els[0].size, t.size, 3)
-    if out is None:
-        out = np.empty(shape)
-    elif (
-        not isinstance(out, np.ndarray)
-        or out.shape != shape
-        or out.dtype != np.float64
-        or not out.flags.c_contiguous
-        or not out.flags.writeable
-    ):
-        raise CovergridError(
-            f"out must be a writeable C-contiguous float64 array of shape {shape}, got "
-            f"{type(out).__name__} {getattr(out, 'shape', None)} {getattr(out, 'dtype', None)}",
-            field="out",
-        )
+    out = _checked_buffer(out, shape, "out")
+    if want_v and out_v is not None:
+        out_v = _checked_buffer(out_v, shape, "out_v")
     raan_dot, argp_dot, m_dot = secular_rates(els[0], els[1], els[2])
     rates = (np.asarray(raan_dot), np.asarray(argp_dot), np.asarray(m_dot))
     # the backends load numba: imported here, so that the secular rates (and the study
@@ -237,7 +229,27 @@ def _propagate(
 
     run = (j2_backends.run_numba if _choose_backend(backend) == "numba"
            else j2_backends.run_numpy)
-    return run(els, rates, t, node_offset_rad, node_rate_offset_rad_s, want_v, out)
+    return run(els, rates, t, node_offset_rad, node_rate_offset_rad_s, want_v, out,
+               rate_terms, out_v)
+
+
+def _checked_buffer(buf: np.ndarray | None, shape: tuple[int, ...], field: str) -> np.ndarray:
+    """A new (n_sat, n_t, 3) array, or `buf` if it is a writeable C-contiguous float64 one."""
+    if buf is None:
+        return np.empty(shape)
+    if (
+        not isinstance(buf, np.ndarray)
+        or buf.shape != shape
+        or buf.dtype != np.float64
+        or not buf.flags.c_contiguous
+        or not buf.flags.writeable
+    ):
+        raise CovergridError(
+            f"{field} must be a writeable C-contiguous float64 array of shape {shape}, got "
+            f"{type(buf).__name__} {getattr(buf, 'shape', None)} {getattr(buf, 'dtype', None)}",
+            field=field,
+        )
+    return buf
 
 
 def propagate(
@@ -389,3 +401,69 @@ def propagate_to_ecef(
         raise CovergridError(f"theta0_rad = {theta0_rad!r} is not finite", field="theta0_rad")
     r, _ = _propagate(elements, t_s, theta0, float(omega_earth_rad_s), False, backend, out)
     return r
+
+
+def propagate_to_ecef_with_velocity(
+    elements: Any,
+    t_s: Any,
+    theta0_rad: float,
+    *,
+    omega_earth_rad_s: float = OMEGA_EARTH_RAD_S,
+    backend: str | None = None,
+    out: np.ndarray | None = None,
+    out_v: np.ndarray | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Earth-fixed positions and their exact time derivatives under the secular-J2 model.
+
+    Parameters
+    ----------
+    elements : ElementSet-like
+        Mean elements at the epoch, as for :func:`propagate` [km, rad].
+    t_s : array_like
+        Times since the epoch, shape (n_t,) [s].
+    theta0_rad : float
+        Earth rotation angle (Greenwich mean sidereal angle) at the epoch [rad].
+    omega_earth_rad_s : float, optional
+        Earth rotation rate [rad/s]; default WGS 84 ``constants.OMEGA_EARTH_RAD_S``.
+    backend : {"numba", "numpy"}, optional
+        Implementation; default numba (``numpy``: the reference implementation).
+    out, out_v : ndarray, optional
+        Writeable C-contiguous float64 arrays of shape (n_sat, n_t, 3) to fill [km, km/s].
+
+    Returns
+    -------
+    r_km : ndarray
+        Earth-fixed positions, shape (n_sat, n_t, 3) [km], as :func:`propagate_to_ecef`.
+    v_km_s : ndarray
+        Their time derivatives in the Earth-fixed frame, shape (n_sat, n_t, 3) [km/s].
+
+    Notes
+    -----
+    The position is :math:`\\mathbf r = R_3(-\\Omega')R_1(-i)R_3(-\\omega)\\,
+    \\mathbf r_{pf}(M)` with the Earth-fixed node :math:`\\Omega' = \\Omega - \\theta`
+    (:func:`propagate_to_ecef`). By the chain rule its time derivative is
+
+    .. math::
+
+        \\dot{\\mathbf r} = \\frac{\\dot M}{n}\\,\\mathbf v_{2b}
+            + \\dot\\omega\\,(\\hat{\\mathbf h} \\times \\mathbf r)
+            + (\\dot\\Omega - \\omega_E)\\,(\\hat{\\mathbf z} \\times \\mathbf r)
+
+    with the two-body velocity :math:`\\mathbf v_{2b} = d\\mathbf r_{pf}/dM \\cdot n` of
+    :func:`propagate` (rotated like the position), the orbit normal
+    :math:`\\hat{\\mathbf h} = \\mathbf P \\times \\mathbf Q` (a change of perigee turns the
+    position about it) and the polar axis :math:`\\hat{\\mathbf z}` (a change of node turns it
+    about that). Unlike the velocity of :func:`propagate`, nothing is neglected: this is the
+    derivative of the modelled trajectory, which the coverage kernel interpolates between
+    samples (cubic Hermite). The Earth-rotation term is the frame transformation
+    :math:`\\mathbf v_{EF} = R_3(\\theta)\\mathbf v_I - \\boldsymbol\\omega_E \\times
+    \\mathbf r_{EF}` (Vallado, *Fundamentals of Astrodynamics and Applications*, 4th ed.,
+    sec. 3.7).
+    """
+    theta0 = float(theta0_rad)
+    if not math.isfinite(theta0):
+        raise CovergridError(f"theta0_rad = {theta0_rad!r} is not finite", field="theta0_rad")
+    r, v = _propagate(elements, t_s, theta0, float(omega_earth_rad_s), True, backend, out,
+                      rate_terms=True, out_v=out_v)
+    assert v is not None
+    return r, v

@@ -58,8 +58,14 @@ def _block_numpy(
     m_dot: np.ndarray,
     t: np.ndarray,
     want_v: bool,
+    rate_terms: bool = False,
 ) -> tuple[np.ndarray, np.ndarray | None]:
-    """Positions (and velocities) for one block of satellites; arrays are (n_blk, 1)."""
+    """Positions (and velocities) for one block of satellites; arrays are (n_blk, 1).
+
+    With ``rate_terms`` the velocity is the exact time derivative of the modelled position
+    (:func:`covergrid.orbits.j2.propagate_to_ecef_with_velocity`), otherwise the two-body
+    velocity on the ellipse.
+    """
     m = m0 + m_dot * t
     m -= 2.0 * np.pi * np.round(m / (2.0 * np.pi))
     E = _kepler_numpy(m, e)
@@ -86,6 +92,12 @@ def _block_numpy(
     vxp = -a * f * sin_e
     vyp = b * f * cos_e
     v = np.stack((vxp * px + vyp * qx, vxp * py + vyp * qy, vxp * pz + vyp * qz), axis=-1)
+    if rate_terms:
+        # dr/dt = (Mdot / n) v + argp_dot (h x r) + node_rate (z x r), h = P x Q
+        h = np.stack((so * si, -co * si, np.broadcast_to(ci, so.shape)), axis=-1)
+        zxr = np.stack((-r[..., 1], r[..., 0], np.zeros_like(r[..., 0])), axis=-1)
+        v = ((m_dot / n)[..., None] * v + argp_dot[..., None] * np.cross(h, r)
+             + raan_rate[..., None] * zxr)
     return r, v
 
 
@@ -97,11 +109,13 @@ def run_numpy(
     node_rate_offset_rad_s: float,
     want_v: bool,
     r: np.ndarray,
+    rate_terms: bool = False,
+    v_out: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray | None]:
     a, e, i, raan, argp, m0 = els
     raan_dot, argp_dot, m_dot = rates
     n_sat, n_t = a.size, t.size
-    v = np.empty((n_sat, n_t, 3)) if want_v else None
+    v = (v_out if v_out is not None else np.empty((n_sat, n_t, 3))) if want_v else None
     step = max(1, _NUMPY_BLOCK_POINTS // max(n_t, 1))
     col = t[None, :]
     for lo in range(0, n_sat, step):  # blocks bound memory; each block is fully vectorised
@@ -123,6 +137,7 @@ def run_numpy(
             c(m_dot),
             col,
             want_v,
+            rate_terms,
         )
         r[s] = rb
         if v is not None and vb is not None:
@@ -167,7 +182,8 @@ def _cos_series_py(x):  # pragma: no cover - compiled by numba
 
 
 def _kernel_py(
-    a, e, inc, raan0, argp0, m0, raan_rate, argp_dot, m_dot, t, want_v, mu, r_out, v_out
+    a, e, inc, raan0, argp0, m0, raan_rate, argp_dot, m_dot, t, want_v, rate_terms, mu, r_out,
+    v_out
 ):  # pragma: no cover - compiled by numba; the NumPy path is its reference
     """Loop over satellites; the maths of ``_block_numpy`` without big temporaries.
 
@@ -323,9 +339,26 @@ def _kernel_py(
                 f = n_s / (1.0 - e_s * cos_e[k])
                 vxp = -a_s * f * sin_e[k]
                 vyp = b_s * f * cos_e[k]
-                v_out[s, k, 0] = vxp * px + vyp * qx
-                v_out[s, k, 1] = vxp * py + vyp * qy
-                v_out[s, k, 2] = vxp * pz + vyp * qz
+                vx = vxp * px + vyp * qx
+                vy = vxp * py + vyp * qy
+                vz = vxp * pz + vyp * qz
+                if rate_terms:
+                    # exact derivative of the modelled position (propagate_to_ecef_with_velocity):
+                    # (Mdot / n) v + argp_dot (h x r) + node_rate (z x r), h = P x Q
+                    rx = r_out[s, k, 0]
+                    ry = r_out[s, k, 1]
+                    rz = r_out[s, k, 2]
+                    hx = so[k] * si
+                    hy = -co[k] * si
+                    kf = m_dot[s] / n_s
+                    wd = argp_dot[s]
+                    od = raan_rate[s]
+                    vx = kf * vx + wd * (hy * rz - ci * ry) - od * ry
+                    vy = kf * vy + wd * (ci * rx - hx * rz) + od * rx
+                    vz = kf * vz + wd * (hx * ry - hy * rx)
+                v_out[s, k, 0] = vx
+                v_out[s, k, 1] = vy
+                v_out[s, k, 2] = vz
 
 
 _jit_inline = numba.njit(cache=True, fastmath=False, inline="always")
@@ -343,11 +376,16 @@ def run_numba(
     node_rate_offset_rad_s: float,
     want_v: bool,
     r: np.ndarray,
+    rate_terms: bool = False,
+    v_out: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray | None]:
     a, e, i, raan, argp, m0 = els
     raan_dot, argp_dot, m_dot = rates
     n_sat, n_t = a.size, t.size
-    v = np.empty((n_sat, n_t, 3)) if want_v else np.empty((0, 0, 3))
+    if want_v:
+        v = v_out if v_out is not None else np.empty((n_sat, n_t, 3))
+    else:
+        v = np.empty((0, 0, 3))
     _kernel_numba(
         a,
         e,
@@ -360,6 +398,7 @@ def run_numba(
         m_dot,
         t,
         want_v,
+        rate_terms,
         MU_EARTH_KM3_S2,
         r,
         v,

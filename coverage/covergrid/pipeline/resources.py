@@ -25,7 +25,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from covergrid.compute.grid import row_bands
-from covergrid.compute.kernel_state import state_bytes_per_cell
+from covergrid.compute.kernel_state import state_bytes_per_cell, state_bytes_per_satellite_row
 from covergrid.compute.metrics import INTEGER_METRICS, METRICS
 from covergrid.compute.sensor import Sensor
 from covergrid.compute.span import POSITION_BLOCK_BYTES
@@ -282,10 +282,10 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     b_rows = max(b - a for a, b in bands)
     running = min(tasks, len(bands))
     out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k)
-    # per running task: the band's streaming state, the position buffer and 4 int32
-    # interval arrays per satellite and row (its finished metrics are counted in results)
+    # per running task: the band's streaming state, the position buffer and the previous
+    # interval per satellite and row (its finished metrics are counted in results)
     per_task = (b_rows * cols * state_bytes_per_cell(k) + POSITION_BLOCK_BYTES
-                + 4 * 4 * n_sat * b_rows)
+                + state_bytes_per_satellite_row() * n_sat * b_rows)
     parts = {
         "baseline": _BASELINE_BYTES,
         "results": int(_RESULT_COPIES * out_bytes),
