@@ -26,7 +26,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from covergrid.compute.engine import compute_coverage  # noqa: E402
 from covergrid.compute.grid import GridSpec  # noqa: E402
-from covergrid.compute.metrics import METRICS  # noqa: E402
+from covergrid.compute.metrics import COVERAGE_METRICS as METRICS  # noqa: E402
 from covergrid.compute.sensor import Sensor  # noqa: E402
 from covergrid.compute.span import count_steps  # noqa: E402
 from covergrid.orbits.walker import walker_delta  # noqa: E402

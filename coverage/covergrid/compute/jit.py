@@ -16,7 +16,8 @@ import numba
 __all__ = ["kernel_function", "kernel_helper"]
 
 #: A compiled kernel function (cached on disk, releases the GIL).
-kernel_function = numba.njit(cache=True, nogil=True, error_model="numpy", _nrt=False)
+kernel_function = numba.njit(cache=True, nogil=True, error_model="numpy",  # type: ignore[call-overload]
+                             _nrt=False)
 #: A compiled helper inlined into its callers.
-kernel_helper = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always",
-                            _nrt=False)
+kernel_helper = numba.njit(cache=True, nogil=True, error_model="numpy",  # type: ignore[call-overload]
+                           inline="always", _nrt=False)

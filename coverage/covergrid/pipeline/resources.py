@@ -24,9 +24,10 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from covergrid.compute.dop_spec import dop_state_bytes_per_cell
 from covergrid.compute.grid import row_bands
 from covergrid.compute.kernel_state import state_bytes_per_cell, state_bytes_per_satellite_row
-from covergrid.compute.metrics import INTEGER_METRICS, METRICS
+from covergrid.compute.metrics import COVERAGE_METRICS, DOP_METRICS, INTEGER_METRICS
 from covergrid.compute.sensor import Sensor
 from covergrid.compute.span import POSITION_BLOCK_BYTES
 from covergrid.constants import MU_EARTH_KM3_S2, WGS84_A_KM
@@ -87,9 +88,11 @@ MAP_S_PER_CELL = 2.0e-6
 # --- memory ---------------------------------------------------------------------------
 #: Bytes per cell of the finished Dataset besides nfold_fraction: a float64 per real metric,
 #: an int32 per integer metric (covergrid.compute.metrics) and the float64 cell area.
-OUTPUT_BYTES_PER_CELL = (8 * sum(1 for m in METRICS if m != "nfold_fraction"
+OUTPUT_BYTES_PER_CELL = (8 * sum(1 for m in COVERAGE_METRICS if m != "nfold_fraction"
                                  and m not in INTEGER_METRICS)
                          + 4 * len(INTEGER_METRICS) + 8)
+#: Bytes per cell the DOP metrics add to the finished Dataset (float64 each).
+DOP_OUTPUT_BYTES_PER_CELL = 8 * len(DOP_METRICS)
 #: Resident memory of a run besides the per-cell terms: the interpreter with numpy, numba,
 #: dask, xarray and netCDF4 imported (0.29 GB peak for a 2 deg study) plus what computing
 #: and writing adds (about 0.25 GB). Fitted to peak RSS (GNU time -v) of `covergrid run` on
@@ -281,11 +284,13 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     bands = row_bands(rows, study.compute.chunk_rows)
     b_rows = max(b - a for a, b in bands)
     running = min(tasks, len(bands))
-    out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k)
-    # per running task: the band's streaming state, the position buffer and the previous
-    # interval per satellite and row (its finished metrics are counted in results)
-    per_task = (b_rows * cols * state_bytes_per_cell(k) + POSITION_BLOCK_BYTES
-                + state_bytes_per_satellite_row() * n_sat * b_rows)
+    dop = study.dop is not None
+    out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k + (DOP_OUTPUT_BYTES_PER_CELL if dop else 0))
+    # per running task: the band's streaming state (and DOP state), the position buffer and
+    # the previous interval per satellite and row (its finished metrics are counted in results)
+    per_task = (b_rows * cols * (state_bytes_per_cell(k)
+                                 + (dop_state_bytes_per_cell() if dop else 0))
+                + POSITION_BLOCK_BYTES + state_bytes_per_satellite_row() * n_sat * b_rows)
     parts = {
         "baseline": _BASELINE_BYTES,
         "results": int(_RESULT_COPIES * out_bytes),
@@ -478,10 +483,13 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
             evaluations += len(orbits) * int((counts * totals).max(initial=0))
     tasks, processes, remote = concurrency(study.compute)
     k = study.nfold_max
-    out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k)
-    per_design = (cells * state_bytes_per_cell(k) + (_RESULT_COPIES + _WRITER_COPIES)
-                  * out_bytes + POSITION_BLOCK_BYTES + 4 * 4 * largest * study.grid.n_lat)
-    columns = _ROW_FIXED_COLUMNS + _ROW_STATISTICS * (len(METRICS) - 1 + k)
+    dop = study.dop is not None
+    out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k + (DOP_OUTPUT_BYTES_PER_CELL if dop else 0))
+    per_design = (cells * (state_bytes_per_cell(k) + (dop_state_bytes_per_cell() if dop else 0))
+                  + (_RESULT_COPIES + _WRITER_COPIES) * out_bytes + POSITION_BLOCK_BYTES
+                  + 4 * 4 * largest * study.grid.n_lat)
+    columns = _ROW_FIXED_COLUMNS + _ROW_STATISTICS * (
+        len(COVERAGE_METRICS) - 1 + k + (len(DOP_METRICS) if dop else 0))
     parts = {
         "baseline": _BASELINE_BYTES,
         "designs": 0 if remote else int(tasks * per_design),

@@ -21,6 +21,7 @@ from typing import Any
 
 import numpy as np
 
+from covergrid.compute.dop_spec import DopSpec
 from covergrid.compute.grid import GridSpec
 from covergrid.compute.requirement import Requirement
 from covergrid.compute.sensor import Sensor
@@ -170,6 +171,8 @@ class ResolvedStudy:
         The study with every default filled in (the provenance record).
     derived : tuple of DerivedValue
         Values derived from others (sun-synchronous inclinations, RAANs from ltan_h).
+    dop : DopSpec or None
+        The dilution-of-precision request (the ``dop:`` section), or None.
     """
 
     name: str
@@ -193,6 +196,7 @@ class ResolvedStudy:
     sizing: SizingSection | None = None
     resolved_yaml: str = field(default="", repr=False)
     derived: tuple[DerivedValue, ...] = ()
+    dop: DopSpec | None = None
 
     @property
     def n_satellites(self) -> int:
@@ -258,6 +262,7 @@ def resolve(study: Study) -> ResolvedStudy:
         sizing=study.sizing,
         resolved_yaml=study.dump_resolved_yaml(),
         derived=derived_values(study),
+        dop=None if study.dop is None else DopSpec(pdop_threshold=study.dop.pdop_threshold),
     )
 
 

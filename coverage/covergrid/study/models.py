@@ -24,6 +24,7 @@ from covergrid.study.sections import (
     NAME_RE,
     SUN_SYNCHRONOUS,
     ComputeSection,
+    DopSection,
     GridSection,
     GroupEntry,
     MapsSection,
@@ -64,6 +65,8 @@ class Study(SectionModel):
     sensor: SensorSection = Field(default_factory=lambda: SensorSection.model_validate({}))
     grid: GridSection = Field(default_factory=lambda: GridSection.model_validate({}))
     requirement: RequirementSection | None = None
+    dop: DopSection | None = Field(None, description="Also compute the dilutions of precision "
+                                   "(navigation studies).")
     maps: MapsSection = Field(default_factory=lambda: MapsSection.model_validate({}))
     compute: ComputeSection = Field(default_factory=lambda: ComputeSection.model_validate({}))
     output: OutputSection = Field(default_factory=lambda: OutputSection.model_validate({}))
@@ -159,6 +162,7 @@ class Study(SectionModel):
                 problems.append((("requirement", "k"), f"exceeds the number of satellites "
                                  f"{total}; allowed: 1 to {total}", self.requirement.k))
         problems += _trade_problems(self)
+        problems += _dop_problems(self)
         if self.sensor.max_range_km is not None and not problems:
             # every satellite stays at least (perigee radius - equatorial radius) from the
             # ground: a shorter range limit means nothing is ever in view
@@ -207,6 +211,21 @@ def _span_problems(study: Study) -> list[tuple[tuple, str, Any]]:
                  f"allowed: at most {room_s / SECONDS_PER_HOUR:.6g} h from this epoch",
                  study.duration_h)]
     return []
+
+
+def _dop_problems(study: Study) -> list[tuple[tuple, str, Any]]:
+    """A DOP metric in the requirement or the maps needs the ``dop:`` section."""
+    if study.dop is not None:
+        return []
+    from covergrid.compute.metrics import DOP_METRICS
+
+    uses: list[tuple[tuple, str]] = []
+    if study.requirement is not None and study.requirement.metric in DOP_METRICS:
+        uses.append((("requirement", "metric"), study.requirement.metric))
+    uses += [(("maps", "metrics", i), m) for i, m in enumerate(study.maps.metrics)
+             if m in DOP_METRICS]
+    return [(where, "is a dilution-of-precision metric: add a dop: section (dop: "
+             "{pdop_threshold: 6}) to compute it", m) for where, m in uses]
 
 
 def _lowest_perigee_altitude_km(group: GroupEntry) -> float:

@@ -40,6 +40,7 @@ __all__ = [
     "SUN_SYNCHRONOUS",
     "SUN_SYNCHRONOUS_MAX_A_KM",
     "ComputeSection",
+    "DopSection",
     "GridSection",
     "GroupEntry",
     "MapsSection",
@@ -561,6 +562,13 @@ class RequirementSection(SectionModel):
             raise Problems([(("at_most",), "give exactly one of at_most or at_least",
                               self.at_most)])
         return self
+
+
+class DopSection(SectionModel):
+    """Dilution of precision per cell from the satellites in view (navigation studies)."""
+
+    pdop_threshold: float = Field(6.0, gt=0.0, le=1000.0, description="pdop_fraction counts "
+                                  "the time with PDOP at or below this [unitless].")
 
 
 class MapsSection(SectionModel):

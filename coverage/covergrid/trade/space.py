@@ -38,7 +38,7 @@ def evaluation_context(study: ResolvedStudy | Study, *, resolution_deg: float | 
                        step_s=float(step_s if step_s is not None else study.step_s),
                        grid=grid, sensor=study.sensor, nfold_max=int(study.nfold_max),
                        requirement=study.requirement, software=software_fingerprint(),
-                       refine_transitions=bool(study.refine_transitions))
+                       refine_transitions=bool(study.refine_transitions), dop=study.dop)
 
 
 def sweep_designs(study: ResolvedStudy | Study) -> list[WalkerDesign]:
