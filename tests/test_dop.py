@@ -188,3 +188,58 @@ def test_dop_metrics_absent_without_a_dop_request():
     ds = compute_coverage(el, "2031-03-20T00:00:00Z", 3600.0, 300.0, GridSpec(30.0),
                           Sensor(10.0), scheduler="synchronous")
     assert not set(DOP_METRICS) & set(ds.data_vars)
+
+
+_NAV_TRADE = """\
+study: nav-trade
+epoch: 2031-03-20T00:00:00Z
+duration_h: 6
+step_s: 600
+constellation:
+  - walker: {pattern: delta, total: 24, planes: 6, phasing: 1}
+    template: {altitude_km: 20200, inclination_deg: 55}
+sensor: {min_elevation_deg: 10}
+grid: {resolution_deg: 15}
+dop: {pdop_threshold: 4}
+requirement: {metric: pdop_fraction, at_least: 0.9, area_fraction: 0.9}
+"""
+
+
+def test_sweep_and_sizing_state_a_dop_requirement(tmp_path):
+    import yaml
+
+    from covergrid.pipeline.run import run_study
+    from covergrid.study import parse_study as parse_data
+    from covergrid.trade.sizing import size_study
+    from covergrid.trade.sweep import run_sweep
+
+    def parse_study(text):
+        return parse_data(yaml.safe_load(text))
+
+    sweep = parse_study(_NAV_TRADE + "sweep: {total: [12, 24], planes: [3, 6]}\n")
+    res = run_sweep(sweep, figures=False)
+    rows = {(r["total"], r["planes"]): r for r in res.rows}
+    assert set(rows) == {(12, 3), (12, 6), (24, 3), (24, 6)}
+    for r in rows.values():
+        assert "p95_pdop_mean" in r and "no_fix_fraction_max" in r
+        assert math.isfinite(r["achieved"])
+    # the row of 24/6/1 is the plain run's verdict
+    single = run_study(parse_study(_NAV_TRADE))
+    assert rows[(24, 6)]["achieved"] == pytest.approx(single.summary["requirement"]["achieved"])
+    # more satellites in the same planes: at least as good a geometry, here strictly better
+    assert rows[(24, 6)]["achieved"] > rows[(12, 6)]["achieved"]
+    sized = size_study(parse_study(_NAV_TRADE + """\
+sizing:
+  pattern: delta
+  altitude_km: [20200]
+  inclination_deg: [55]
+  total: {min: 12, max: 24}
+  planes: [6]
+  phasing: [1]
+  prune: false
+"""))
+    assert sized.best is not None
+    best = sized.best["total"]
+    by_total = {r["total"]: r for r in sized.designs}
+    assert by_total[best]["meets"]
+    assert all(not r["meets"] for t, r in by_total.items() if t < best)

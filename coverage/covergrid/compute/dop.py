@@ -90,22 +90,22 @@ def new_dop_state(n_cells: int, n_sat: int) -> dict[str, np.ndarray]:
             "bound_cache": np.full((n_sat, 2), -1.0)}
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
 def _dop_squares(mxx, mxy, mxz, myy, myz, mzz, bx, by, bz, n, ex, ey, ez):
     """(GDOP^2, PDOP^2, HDOP^2, VDOP^2, TDOP^2) from the sums of a cell's geometry matrix.
 
     ``m..`` = sum of u u^T, ``b.`` = sum of u, ``n`` = satellites, ``e.`` = the unit
     vertical (module notes: Schur complement of n, adjugate of the scatter matrix). All
-    infinite with fewer than four satellites or a singular geometry. Scalars only.
+    infinite with fewer than four satellites or a singular geometry. Scalars only, and no
+    branches (selects), so that a loop over cells runs on vector units.
     """
-    if n < 4.0:
-        return math.inf, math.inf, math.inf, math.inf, math.inf
-    cxx = mxx - bx * bx / n
-    cxy = mxy - bx * by / n
-    cxz = mxz - bx * bz / n
-    cyy = myy - by * by / n
-    cyz = myz - by * bz / n
-    czz = mzz - bz * bz / n
+    nn = max(n, 4.0)
+    cxx = mxx - bx * bx / nn
+    cxy = mxy - bx * by / nn
+    cxz = mxz - bx * bz / nn
+    cyy = myy - by * by / nn
+    cyz = myz - by * bz / nn
+    czz = mzz - bz * bz / nn
     a00 = cyy * czz - cyz * cyz
     a11 = cxx * czz - cxz * cxz
     a22 = cxx * cyy - cxy * cxy
@@ -114,15 +114,56 @@ def _dop_squares(mxx, mxy, mxz, myy, myz, mzz, bx, by, bz, n, ex, ey, ez):
     a12 = cxy * cxz - cxx * cyz
     det = cxx * a00 + cxy * a01 + cxz * a02
     tr = cxx + cyy + czz
-    if not det > _SINGULAR * (tr / 3.0) ** 3:
-        return math.inf, math.inf, math.inf, math.inf, math.inf
-    p2 = (a00 + a11 + a22) / det
+    ok = (n >= 4.0) & (det > _SINGULAR * (tr / 3.0) ** 3)
+    inv = 1.0 / det if ok else math.inf
+    p2 = (a00 + a11 + a22) * inv
     v2 = (a00 * ex * ex + a11 * ey * ey + a22 * ez * ez
-          + 2.0 * (a01 * ex * ey + a02 * ex * ez + a12 * ey * ez)) / det
-    h2 = max(p2 - v2, 0.0)
-    t2 = 1.0 / n + (a00 * bx * bx + a11 * by * by + a22 * bz * bz
-                    + 2.0 * (a01 * bx * by + a02 * bx * bz + a12 * by * bz)) / (det * n * n)
+          + 2.0 * (a01 * ex * ey + a02 * ex * ez + a12 * ey * ez)) * inv
+    h2 = max(p2 - v2, 0.0) if ok else math.inf
+    t2 = 1.0 / nn + (a00 * bx * bx + a11 * by * by + a22 * bz * bz
+                     + 2.0 * (a01 * bx * by + a02 * bx * bz + a12 * by * bz)) * inv / (nn * nn)
+    p2 = p2 if ok else math.inf
+    v2 = v2 if ok else math.inf
+    t2 = t2 if ok else math.inf
     return p2 + t2, p2, h2, v2, t2
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _fold_row(sums, cos_lon, sin_lon, cl, sl, dop2, stats, base, pdop2_ok):
+    """Each cell's DOPs of one row from its geometry sums, folded into its statistics
+    (count without a fix, with a fix, PDOP at or below the threshold, sums of DOP, largest
+    DOP^2); ``dop2`` (5, n_lon) receives the squares for the histograms. Vectorisable."""
+    n_lon = cos_lon.shape[0]
+    g_out = dop2[0]
+    p_out = dop2[1]
+    h_out = dop2[2]
+    v_out = dop2[3]
+    t_out = dop2[4]
+    no_fix = stats[_N_NO_FIX, base: base + n_lon]
+    fixes = stats[_N_FINITE, base: base + n_lon]
+    good = stats[_N_PDOP_OK, base: base + n_lon]
+    for j in range(n_lon):
+        n = sums[9, j]
+        g2, p2, h2, v2, t2 = _dop_squares(
+            sums[0, j], sums[1, j], sums[2, j], sums[3, j], sums[4, j], sums[5, j],
+            sums[6, j], sums[7, j], sums[8, j], n, cl * cos_lon[j], cl * sin_lon[j], sl)
+        fin = p2 < math.inf
+        no_fix[j] += 1.0 if n < 4.0 else 0.0
+        fixes[j] += 1.0 if fin else 0.0
+        good[j] += 1.0 if fin & (p2 <= pdop2_ok) else 0.0
+        g_out[j] = g2
+        p_out[j] = p2
+        h_out[j] = h2
+        v_out[j] = v2
+        t_out[j] = t2
+    for k in range(5):
+        sq = dop2[k]
+        total = stats[_SUM + k, base: base + n_lon]
+        top = stats[_MAX2 + k, base: base + n_lon]
+        for j in range(n_lon):
+            v = sq[j]
+            total[j] += math.sqrt(v) if v < math.inf else 0.0
+            top[j] = max(top[j], v)
 
 
 @numba.njit(cache=True)
@@ -165,7 +206,70 @@ def dop_values(lines_of_sight: np.ndarray, up: np.ndarray) -> dict[str, float]:
     return {k: math.sqrt(v) for k, v in zip(DOP_KINDS, squares, strict=True)}
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _accumulate(sums, los, j_start, j_end, x, y, z, rs2, rho_r, zc, cl, sl, cos_lon, sin_lon,
+                sin2_el, cos2_eta, range2):
+    """Add the lines of sight of one satellite to the geometry sums of columns
+    [j_start, j_end) of a row, where it is in view (the coverage kernel's limits: elevation
+    above the ellipsoid-normal horizon, slant range, off-nadir angle).
+
+    Branch-free, in short loops of few arrays each, so that they run on vector units: a
+    cell out of view adds exact zeros, which leaves its sums as they were. ``los`` (4, n_lon)
+    is scratch space.
+    """
+    # loops over range(n) of slices: the form numba's compiler vectorises
+    n = j_end - j_start
+    c_lon = cos_lon[j_start:j_end]
+    s_lon = sin_lon[j_start:j_end]
+    ux = los[0, j_start:j_end]
+    uy = los[1, j_start:j_end]
+    uz = los[2, j_start:j_end]
+    w = los[3, j_start:j_end]
+    dz = z - zc
+    use_range = range2 >= 0.0
+    use_cone = cos2_eta >= 0.0
+    for i in range(n):
+        dx = x - rho_r * c_lon[i]
+        dy = y - rho_r * s_lon[i]
+        up = cl * (dx * c_lon[i] + dy * s_lon[i]) + sl * dz
+        d2 = dx * dx + dy * dy + dz * dz
+        nd = x * dx + y * dy + z * dz
+        ok = (up >= 0.0) & (up * up >= sin2_el * d2)
+        ok &= (~use_range) | (d2 <= range2)
+        ok &= (~use_cone) | ((nd >= 0.0) & (nd * nd >= cos2_eta * rs2 * d2))
+        inv = 1.0 / math.sqrt(d2)
+        inv = inv if ok else 0.0
+        ux[i] = dx * inv
+        uy[i] = dy * inv
+        uz[i] = dz * inv
+        w[i] = 1.0 if ok else 0.0
+    # three loops of at most eight arrays each (more defeat the compiler's alias checks)
+    s_xx = sums[0, j_start:j_end]
+    s_xy = sums[1, j_start:j_end]
+    s_xz = sums[2, j_start:j_end]
+    for i in range(n):
+        s_xx[i] += ux[i] * ux[i]
+        s_xy[i] += ux[i] * uy[i]
+        s_xz[i] += ux[i] * uz[i]
+    s_yy = sums[3, j_start:j_end]
+    s_yz = sums[4, j_start:j_end]
+    s_zz = sums[5, j_start:j_end]
+    for i in range(n):
+        s_yy[i] += uy[i] * uy[i]
+        s_yz[i] += uy[i] * uz[i]
+        s_zz[i] += uz[i] * uz[i]
+    s_x = sums[6, j_start:j_end]
+    s_y = sums[7, j_start:j_end]
+    s_z = sums[8, j_start:j_end]
+    s_n = sums[9, j_start:j_end]
+    for i in range(n):
+        s_x[i] += ux[i]
+        s_y[i] += uy[i]
+        s_z[i] += uz[i]
+        s_n[i] += w[i]
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, el_min_rad,
                 eta_max_rad, range_max_km, pdop2_ok, stats, hist, bound_cache):
     """Fold a block of samples into one band's DOP state (see the module notes).
@@ -203,7 +307,8 @@ def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, el_mi
     sin_psi = np.sin(psi)
     cos_psi = np.cos(psi)
     sums = np.empty((_N_SUMS, n_lon))
-    dop2 = np.empty(len(DOP_KINDS) * n_lon)
+    los = np.empty((4, n_lon))
+    dop2 = np.empty((len(DOP_KINDS), n_lon))
     bits = dop2.view(np.int64)
     sat = np.empty((n_sat, 6))  # lon, sin psi, cos psi, cos lambda, first row, end row
     for b in range(n_block):
@@ -251,68 +356,20 @@ def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, el_mi
                     j_first = int(math.floor((sat[s, 0] - w - lon0) / dlon - 0.5))
                     j_last = int(math.floor((sat[s, 0] + w - lon0) / dlon - 0.5)) + 1
                     count = min(j_last - j_first + 1, n_lon)
-                for m in range(count):
-                    j = (j_first + m) % n_lon
-                    dx = x - rho_r * cos_lon[j]
-                    dy = y - rho_r * sin_lon[j]
-                    dz = z - zc
-                    up = cl * (dx * cos_lon[j] + dy * sin_lon[j]) + sl * dz
-                    if up < 0.0:
-                        continue
-                    d2 = dx * dx + dy * dy + dz * dz
-                    if up * up < sin2_el * d2:
-                        continue
-                    if range2 >= 0.0 and d2 > range2:
-                        continue
-                    if cos2_eta >= 0.0:
-                        nd = x * dx + y * dy + z * dz
-                        if nd < 0.0 or nd * nd < cos2_eta * rs2 * d2:
-                            continue
-                    inv = 1.0 / math.sqrt(d2)
-                    ux = dx * inv
-                    uy = dy * inv
-                    uz = dz * inv
-                    sums[0, j] += ux * ux
-                    sums[1, j] += ux * uy
-                    sums[2, j] += ux * uz
-                    sums[3, j] += uy * uy
-                    sums[4, j] += uy * uz
-                    sums[5, j] += uz * uz
-                    sums[6, j] += ux
-                    sums[7, j] += uy
-                    sums[8, j] += uz
-                    sums[9, j] += 1.0
+                # the candidates as at most two runs of whole columns (wrap-around)
+                j0 = j_first % n_lon
+                first_end = min(j0 + count, n_lon)
+                _accumulate(sums, los, j0, first_end, x, y, z, rs2, rho_r, zc, cl, sl, cos_lon,
+                            sin_lon, sin2_el, cos2_eta, range2)
+                if j0 + count > n_lon:
+                    _accumulate(sums, los, 0, j0 + count - n_lon, x, y, z, rs2, rho_r, zc, cl, sl,
+                                cos_lon, sin_lon, sin2_el, cos2_eta, range2)
             base = r * n_lon
-            for j in range(n_lon):
-                c = base + j
-                n = sums[9, j]
-                g2, p2, h2, v2, t2 = _dop_squares(
-                    sums[0, j], sums[1, j], sums[2, j], sums[3, j], sums[4, j], sums[5, j],
-                    sums[6, j], sums[7, j], sums[8, j], n, cl * cos_lon[j], cl * sin_lon[j],
-                    sl)
-                if n < 4.0:
-                    stats[_N_NO_FIX, c] += 1.0
-                elif p2 < math.inf:
-                    stats[_N_FINITE, c] += 1.0
-                    if p2 <= pdop2_ok:
-                        stats[_N_PDOP_OK, c] += 1.0
-                    stats[_SUM, c] += math.sqrt(g2)
-                    stats[_SUM + 1, c] += math.sqrt(p2)
-                    stats[_SUM + 2, c] += math.sqrt(h2)
-                    stats[_SUM + 3, c] += math.sqrt(v2)
-                    stats[_SUM + 4, c] += math.sqrt(t2)
-                dop2[j] = g2
-                dop2[n_lon + j] = p2
-                dop2[2 * n_lon + j] = h2
-                dop2[3 * n_lon + j] = v2
-                dop2[4 * n_lon + j] = t2
+            _fold_row(sums, cos_lon, sin_lon, cl, sl, dop2, stats, base, pdop2_ok)
             for k in range(len(DOP_KINDS)):
                 for j in range(n_lon):
-                    v = dop2[k * n_lon + j]
                     c = base + j
-                    if v > stats[_MAX2 + k, c]:
-                        stats[_MAX2 + k, c] = v
-                    idx = (bits[k * n_lon + j] >> HIST_SHIFT) - HIST_BASE + 1
+                    idx = (bits[k, j] >> HIST_SHIFT) - HIST_BASE + 1
                     idx = min(max(idx, 0), N_BINS - 1)
                     hist[k, idx, c] += 1
 
