@@ -377,6 +377,10 @@ def _estimate_text(study, est: dict, trades: dict, derived: list[dict]) -> str:
         limits.append(f"max off-nadir {s.max_off_nadir_deg:g} deg")
     if s.max_range_km is not None:
         limits.append(f"max range {s.max_range_km:g} km")
+    if s.min_sun_elevation_deg is not None:
+        limits.append(f"daylight only (Sun at least {s.min_sun_elevation_deg:g} deg high)")
+    if study.dop is not None:
+        limits.append(f"dilution of precision (PDOP threshold {study.dop.pdop_threshold:g})")
     lines = [
         f"study {study.study}: valid",
         f"  constellation   {est['satellites']} satellites: " + "; ".join(groups),

@@ -42,7 +42,8 @@ __all__ = ["PLANAR_METRICS", "band_task", "compute_coverage"]
 
 def band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
               grid_spec: GridSpec, rows: tuple[int, int], sensor: Sensor,
-              nfold_max: int, refine: bool = True, dop: DopSpec | None = None) -> np.ndarray:
+              nfold_max: int, refine: bool = True, dop: DopSpec | None = None,
+              epoch: np.datetime64 | None = None) -> np.ndarray:
     """Metrics of the cells of rows [r0, r1): propagate block by block, stream the kernel.
 
     Returns one float64 stack: the metrics other than ``nfold_fraction`` (order
@@ -51,12 +52,13 @@ def band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     :data:`covergrid.compute.metrics.DOP_METRICS`). If the kernel's per-sample event queue
     overflowed
     (:func:`covergrid.compute.kernel_state.queue_overflow`), the band is computed again with a
-    queue four times longer, so no event is lost.
+    queue four times longer, so no event is lost. ``epoch`` (the span's start, UTC) places
+    the Sun for a sensor with a daylight threshold.
     """
     queue_per_cell = kernel_state.QUEUE_PER_CELL
     while True:
         state, dop_state = _run_band(elements, theta0_rad, step_s, n_steps, grid_spec, rows,
-                                     sensor, nfold_max, refine, queue_per_cell, dop)
+                                     sensor, nfold_max, refine, queue_per_cell, dop, epoch)
         if kernel_state.queue_overflow(state) == 0:
             break
         queue_per_cell *= 4
@@ -83,7 +85,8 @@ def band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
 
 def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
               grid_spec: GridSpec, rows: tuple[int, int], sensor: Sensor, nfold_max: int,
-              refine: bool, queue_per_cell: int, dop: DopSpec | None
+              refine: bool, queue_per_cell: int, dop: DopSpec | None,
+              epoch: np.datetime64 | None = None
               ) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray] | None]:
     """The kernel's closed-out state of one band and its DOP state (see :func:`band_task`)."""
     grid = Grid(grid_spec)
@@ -95,6 +98,7 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     state = kernel_state.new_state(n_rows * n_lon, nfold_max, n_sat, n_rows, queue_per_cell)
     dop_state = None if dop is None else dop_module.new_dop_state(n_rows * n_lon, n_sat)
     el_min, eta_max, range_max = sensor.kernel_args()
+    sun_min = math.radians(sensor.min_sun_elevation_deg or 0.0)
     # continuous time needs the end of the span as a sample too (the last step's crossings)
     n_samples = n_steps + 1 if refine else n_steps
     block = position_block_length(n_sat, n_samples, with_velocity=refine)
@@ -113,13 +117,27 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
         else:
             pos, vel = j2.propagate_to_ecef(elements, t, theta0_rad, out=out), None
         kernel.run_band(state, pos, i0, geo, lon0, dlon, n_lon, el_min, eta_max, range_max,
-                        refine, vel, step_s)
+                        refine, vel, step_s, _sun_ecef_km(sensor, epoch, t), sun_min)
         if dop_state is not None and dop is not None and i0 < n_steps:
             # DOP is sampled (sample and hold): the span's end sample is not one of its own
             dop_module.run_dop_band(dop_state, pos[:, : n_steps - i0], geo, lon0, dlon, n_lon,
                                     el_min, eta_max, range_max, dop)
     kernel.close_band(state, n_steps)
     return state, dop_state
+
+
+def _sun_ecef_km(sensor: Sensor, epoch: np.datetime64 | None, t_s: np.ndarray
+                 ) -> np.ndarray | None:
+    """The Sun's Earth-fixed positions at the samples t_s [km] when the sensor has a daylight
+    threshold (Astronomical Almanac low-precision Sun, IAU 1982 sidereal angle), else None."""
+    if sensor.min_sun_elevation_deg is None:
+        return None
+    if epoch is None:
+        raise ValueError("a daylight threshold needs the epoch")
+    from covergrid.earth.frames import eci_to_ecef
+    from covergrid.earth.sun import sun_position_eci_km
+
+    return eci_to_ecef(sun_position_eci_km(epoch, t_s), gmst_rad(epoch, t_s))
 
 
 def _front(buf: np.ndarray, nb: int) -> np.ndarray:
@@ -233,7 +251,7 @@ def compute_coverage(
     depth = len(PLANAR_METRICS) + nfold_max + 1 + (len(DOP_METRICS) if dop is not None else 0)
     tasks = [dask.delayed(band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid,
                                                  b, sensor, int(nfold_max),
-                                                 bool(refine_transitions), dop)
+                                                 bool(refine_transitions), dop, epoch)
              for b in bands]
     if compute:
         # run the band tasks and assemble with numpy: no dask-array graph to optimise

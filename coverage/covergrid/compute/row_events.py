@@ -21,6 +21,10 @@ through its values and rates at the two samples; its zeros are the crossings
 * where the row is reached, left or filled only within the step, every cell within a
   conservative bound of the interval over the step (the satellite's longitude range and the
   half-width's range from the Hermite interpolants of both).
+
+The cell helpers inlined here (:mod:`covergrid.compute.cell_events`) read the per-cell state
+by the column constants of :mod:`covergrid.compute.kernel_state`; numba's on-disk cache does
+not notice a change there, so `make` empties the cache whenever a compiled source changes.
 """
 
 from __future__ import annotations

@@ -216,6 +216,10 @@ def _span_problems(study: Study) -> list[tuple[tuple, str, Any]]:
 def _dop_problems(study: Study) -> list[tuple[tuple, str, Any]]:
     """A DOP metric in the requirement or the maps needs the ``dop:`` section."""
     if study.dop is not None:
+        if study.sensor.min_sun_elevation_deg is not None:
+            return [(("dop",), "is computed from every satellite in view, day and night; "
+                     "leave out sensor.min_sun_elevation_deg (a daylight constraint) or dop",
+                     None)]
         return []
     from covergrid.compute.metrics import DOP_METRICS
 

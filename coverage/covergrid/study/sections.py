@@ -514,6 +514,9 @@ class SensorSection(SectionModel):
                                             description="Sensor half-cone angle [deg].")
     max_range_km: float | None = Field(None, gt=0.0, le=MAX_RANGE_KM,
                                        description="Maximum slant range [km].")
+    min_sun_elevation_deg: float | None = Field(
+        None, gt=-90.0, lt=90.0, description="Daylight: a cell counts as seen only while the "
+        "Sun is at least this high above its horizon [deg] (optical imaging).")
 
 
 class GridSection(SectionModel):
