@@ -155,7 +155,7 @@ def test_run_end_to_end_writes_every_output(tmp_path, capsys):
     assert cli.main(["run", str(study), "--out", str(out), "--no-maps", "--quiet"]) == 0
     folder = out / "tiny-ring"
     assert sorted(p.name for p in folder.iterdir()) == [
-        "coverage.nc", "study.resolved.yaml", "summary.csv", "summary.json"]
+        "coverage.nc", "report.html", "study.resolved.yaml", "summary.csv", "summary.json"]
     with xr.open_dataset(folder / "coverage.nc") as ds:
         assert set(METRICS) <= set(ds.data_vars)
         assert ds.attrs["Conventions"] == "CF-1.8"
@@ -289,3 +289,17 @@ def test_nfold_requirement_uses_its_fold(tmp_path, capsys):
     summary = json.loads((tmp_path / "o" / "tiny-ring" / "summary.json").read_text())
     v = summary["requirement"]
     assert (v["metric"], v["k"], v["met"], v["achieved"]) == ("nfold_fraction", 6, False, 0.0)
+
+
+def test_quiet_still_prints_the_verdict_line_with_units(tmp_path, capsys):
+    study = write_study(tmp_path, TINY_STUDY + "requirement: {metric: max_gap, at_most: 3600, "
+                        "area_fraction: 0.5}\n")
+    status = cli.main(["run", str(study), "--out", str(tmp_path / "o"), "--no-maps",
+                       "--no-report", "--quiet"])
+    lines = capsys.readouterr().out.splitlines()
+    assert len(lines) == 1 and lines[0].startswith("requirement max_gap at most 3600.0 s over "
+                                                   "50 % of the area: ")
+    # threshold, achieved and margin: seconds, one decimal each, the margin signed
+    assert re.search(r"\(achieved \d+\.\d s, margin [+-]\d+\.\d s; \d+\.\d % of the area",
+                     lines[0]), lines[0]
+    assert status == (0 if "NOT MET" not in lines[0] else 1)

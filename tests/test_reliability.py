@@ -228,7 +228,7 @@ def test_changed_maps_or_no_maps_leave_no_old_maps(tmp_path):
     assert sorted(p.name for p in maps.iterdir()) == ["mean_in_view.pdf", "mean_in_view.png"]
     assert cli.main(["run", str(other), "--out", str(out), "--quiet", "--no-maps"]) == 0
     assert sorted(p.name for p in (out / "probe").iterdir()) == [
-        "coverage.nc", "study.resolved.yaml", "summary.csv", "summary.json"]
+        "coverage.nc", "report.html", "study.resolved.yaml", "summary.csv", "summary.json"]
 
 
 @pytest.mark.slow  # a run with figures: 5-10 s

@@ -110,7 +110,11 @@ def build_parser() -> argparse.ArgumentParser:
                    help="run even if the memory estimate exceeds the limit (the work limits "
                    "still hold)")
     r.add_argument("--no-maps", action="store_true", help="skip the figures")
-    r.add_argument("--quiet", action="store_true", help="no progress bar and no report")
+    r.add_argument("--report", action=argparse.BooleanOptionalAction, default=True,
+                   help="write report.html, one self-contained document of the results "
+                   "(default: --report)")
+    r.add_argument("--quiet", action="store_true",
+                   help="no progress bar; print only the requirement's verdict line")
 
     c = sub.add_parser("check", help="validate a study and estimate its cost", epilog=_EPILOG,
                        formatter_class=fmt, parents=[common],
@@ -158,10 +162,14 @@ def build_parser() -> argparse.ArgumentParser:
                        help="override compute.scheduler: threads, synchronous, processes, "
                        "local-cluster or tcp://host:port")
         t.add_argument("--no-figures", action="store_true", help="skip the trade figures")
+        t.add_argument("--report", action=argparse.BooleanOptionalAction, default=True,
+                       help="write report.html, one self-contained document of the results "
+                       "(default: --report)")
         t.add_argument("--force", action="store_true",
                        help="run even if the memory estimate exceeds the limit (the work and "
                        "design limits still hold)")
-        t.add_argument("--quiet", action="store_true", help="no progress bar and no report")
+        t.add_argument("--quiet", action="store_true",
+                       help="no progress bar; print only the verdict line")
 
     sub.add_parser("schema", help="print the JSON Schema of a study file", epilog=_EPILOG,
                    formatter_class=fmt, parents=[common],
@@ -253,26 +261,43 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     study = load_study(args.study)
     result = run_study(study, args.out, progress=not args.quiet, scheduler=args.scheduler,
-                       maps=not args.no_maps, force=args.force)
+                       maps=not args.no_maps, force=args.force, report=args.report)
     verdict = result.summary.get("requirement")
     if not args.quiet:
         print(f"covergrid: wrote {len(result.files)} files to {result.out_dir}")
-        if verdict is not None:
-            print(_verdict_text(verdict))
+    if verdict is not None:  # the verdict line, --quiet or not
+        print(_verdict_text(verdict))
     if verdict is not None and not verdict["met"]:
         return EXIT_REQUIREMENT_NOT_MET
     return EXIT_OK
 
 
 def _verdict_text(v: dict) -> str:
-    sense = "<=" if v["sense"] == "at_most" else ">="
-    name = v["metric"] + (f"[k={v['k']}]" if v["k"] is not None else "")
-    units = f" {v['units']}" if v["units"] not in ("", "1") else ""
-    state = "MET" if v["met"] else "NOT MET"
-    return (f"requirement {name} {sense} {v['threshold']:g}{units} over "
-            f"{100 * v['area_fraction']:g} % of the area: {state} (achieved "
-            f"{v['achieved']:g}{units}, margin {v['margin']:+g}{units}; "
-            f"{100 * v['area_fraction_met']:.1f} % of the area meets it)")
+    """The verdict line: units and one number of decimals for threshold, achieved and margin
+    (seconds stay seconds: ``achieved 2044.6 s, margin +655.4 s``)."""
+    from covergrid.compute.quantities import verdict_text
+
+    return "requirement " + verdict_text(v, long_name=v["metric"], kind=_kind(v["metric"]),
+                                         stored_units=True)
+
+
+def _kind(metric: str) -> str | None:
+    from covergrid.compute.metrics import METRICS
+
+    info = METRICS.get(metric)
+    return info.kind if info is not None else None
+
+
+def _quantity(value: float, metric: str, *, signed: bool = False) -> str:
+    """A value of a metric in its stored units (seconds stay seconds), e.g. ``+655.4 s``."""
+    from covergrid.compute.metrics import METRICS
+    from covergrid.compute.quantities import DisplayUnit, format_values, unit_for
+
+    info = METRICS.get(metric)
+    units = info.units if info is not None else None
+    unit = (DisplayUnit("s", 1.0) if units == "s"
+            else unit_for(metric, units, abs(value), _kind(metric)))
+    return format_values([value], unit, signed=[0] if signed else [])[0]
 
 
 def _cmd_trade(args: argparse.Namespace) -> int:
@@ -290,20 +315,21 @@ def _cmd_trade(args: argparse.Namespace) -> int:
         from covergrid.trade.sweep import run_sweep
 
         res = run_sweep(resolved, args.out, progress=not args.quiet,
-                        figures=not args.no_figures, force=args.force)
+                        figures=not args.no_figures, force=args.force, report=args.report)
         if not args.quiet:
-            met = sum(1 for r in res.rows if r.get("meets") is True)
             print(f"covergrid: {len(res.rows)} designs ({res.computed} computed, "
                   f"{len(res.rows) - res.computed} from the store); wrote {len(res.files or [])} "
                   f"files to {res.out_dir}")
-            if resolved.requirement is not None:
-                print(f"{met} of {len(res.rows)} designs meet the requirement")
+        if resolved.requirement is not None:  # the verdict line, --quiet or not
+            met = sum(1 for r in res.rows if r.get("meets") is True)
+            print(f"{met} of {len(res.rows)} designs meet the requirement")
         return EXIT_OK
     from covergrid.trade.sizing import run_sizing
 
     sized = run_sizing(resolved, args.out, progress=not args.quiet,
-                       figures=not args.no_figures, force=args.force)
+                       figures=not args.no_figures, force=args.force, report=args.report)
     sizing_max = resolved.sizing.total.max if resolved.sizing is not None else None
+    metric = resolved.requirement.metric if resolved.requirement is not None else ""
     if not args.quiet:
         print(f"covergrid: wrote {len(sized.files or [])} files to {sized.out_dir}")
         for r in sized.results:
@@ -311,9 +337,19 @@ def _cmd_trade(args: argparse.Namespace) -> int:
             if r["feasible"]:
                 loss = f", worst loss {r['worst_loss']}" if r["worst_loss"] else ""
                 print(f"  {where}: {r['pattern']} {r['total']}/{r['planes']}/{r['phasing']} "
-                      f"(achieved {r['achieved']:g}, margin {r['margin']:+g}{loss})")
+                      f"(achieved {_quantity(r['achieved'], metric)}, margin "
+                      f"{_quantity(r['margin'], metric, signed=True)}{loss})")
             else:
                 print(f"  {where}: none up to {sizing_max} satellites")
+    b = sized.best  # the verdict line, --quiet or not
+    if b is not None:
+        print(f"smallest design meeting the requirement: {b['pattern']} "
+              f"{b['total']}/{b['planes']}/{b['phasing']} at {b['altitude_km']:g} km, "
+              f"{b['inclination_deg']:g} deg (achieved {_quantity(b['achieved'], metric)}, "
+              f"margin {_quantity(b['margin'], metric, signed=True)})")
+    else:
+        print(f"no design up to {sizing_max} satellites meets the requirement")
+    if not args.quiet:
         s = sized.search
         print(f"  designs: {s['designs_in_space']} in the space, {s['full_evaluated']} "
               f"evaluated at full resolution, {s['pruned']} pruned coarsely, "
@@ -402,17 +438,23 @@ def _estimate_text(study, est: dict, trades: dict, derived: list[dict]) -> str:
         lines.append(f"  derived         {d['path']} = {d['value']:.4f} {d['unit']} "
                      f"({d['how']})")
     if study.requirement is not None:
+        from covergrid.compute.metrics import METRICS
+        from covergrid.compute.quantities import requirement_text
+
         r = study.requirement
-        sense = ("at most", r.at_most) if r.at_most is not None else ("at least", r.at_least)
-        k = f" (k = {r.k})" if r.k is not None else ""
-        lines.append(f"  requirement     {r.metric}{k} {sense[0]} {sense[1]:g} over "
-                     f"{100 * r.area_fraction:g} % of the area")
+        info = METRICS.get(r.metric)
+        text = requirement_text({"metric": r.metric, "k": r.k, "at_most": r.at_most,
+                                 "at_least": r.at_least, "area_fraction": r.area_fraction},
+                                long_name=r.metric, units=info.units if info else None,
+                                kind=info.kind if info else None, stored_units=True)
+        lines.append(f"  requirement     {text}")
     for block, t in trades.items():
-        what = ("designs" if block == "sweep" else
-                f"designs in the search space, at most {t['evaluations']:,} evaluations")
-        lines.append(f"  {block:<15} {t['designs']:,} {what}; about {t['visits']:.3g} "
-                     f"visibilities, time about {format_seconds(t['seconds'])} with "
-                     f"{t['designs_at_once']} at once; memory {memory(t)}")
+        what = (f"will run {t['designs']:,} designs" if block == "sweep" else
+                f"{t['designs']:,} designs in the search space, will run at most "
+                f"{t['evaluations']:,} evaluations")
+        lines.append(f"  {block:<15} {what}; estimated time about "
+                     f"{format_seconds(t['seconds'])} ({t['designs_at_once']} at once; about "
+                     f"{t['visits']:.3g} visibilities); memory {memory(t)}")
     return "\n".join(lines)
 
 

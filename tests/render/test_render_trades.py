@@ -71,8 +71,10 @@ def test_save_trade_figures_from_dict_and_dataset(tmp_path):
     for path in written:
         if path.suffix == ".png":
             with Image.open(path) as image:
-                assert image.size == (round(trades.TRADE_FIGSIZE_IN[0] * style.DPI),
-                                      round(trades.TRADE_FIGSIZE_IN[1] * style.DPI))
+                # the width is the figure's; the height fits the chart and its caption
+                assert image.size[0] == round(trades.TRADE_FIGSIZE_IN[0] * style.DPI)
+                assert (0.7 * trades.TRADE_FIGSIZE_IN[1] * style.DPI < image.size[1]
+                        <= 1.3 * trades.TRADE_FIGSIZE_IN[1] * style.DPI)
                 assert np.asarray(image.convert("L"), dtype=float).std() > 10.0
         else:
             data = path.read_bytes()
@@ -100,7 +102,8 @@ def test_charts_content():
     fig = mesh.axes.figure
     try:
         texts = sorted(t.get_text() for t in mesh.axes.texts)
-        assert texts == ["18", "18", "18", "24", "none", "none"]
+        # "none" up to the largest total swept
+        assert texts == ["18", "18", "18", "24", "none\n\u226424", "none\n\u226424"]
     finally:
         plt.close(fig)
 
@@ -129,3 +132,53 @@ def test_axis_names_what_is_traded():
         assert lines[0].axes.get_ylabel() == f"{name} [h]"
     finally:
         plt.close(lines[0].axes.figure)
+
+
+def test_minimum_total_map_marks_answers_at_the_floor_and_is_discrete():
+    """An answer at the smallest total swept may not be the true minimum: the cell says
+    "<=" and a note under the chart says why; the colour bar has one colour per total."""
+    table = _table()
+    table["meets"] = table["max_gap"] <= 8000.0  # 12 (the floor) already meets in places
+    mesh = trades.plot_minimum_total_map(table)
+    fig = mesh.axes.figure
+    try:
+        texts = sorted(t.get_text() for t in mesh.axes.texts)
+        assert texts == ["18", "18", "\u226412", "\u226412", "\u226412", "\u226412"]
+        note = next(a for a in mesh.axes.get_children() if a.get_gid() == "covergrid-bound-note")
+        assert "smallest total swept" in note.get_title().get_text()
+        # discrete: ticks at the totals found, and as many colours as totals
+        np.testing.assert_array_equal(mesh.colorbar.get_ticks(), [12, 18])
+        assert mesh.cmap.N == 2
+    finally:
+        plt.close(fig)
+    table["meets"] = table["max_gap"] <= 4000.0  # no answer at the floor: no note
+    mesh = trades.plot_minimum_total_map(table)
+    try:
+        assert not any(a.get_gid() == "covergrid-bound-note" for a in mesh.axes.get_children())
+        assert "none\n\u226424" in [t.get_text() for t in mesh.axes.texts]
+    finally:
+        plt.close(mesh.axes.figure)
+
+
+def test_single_design_charts_have_sane_ticks_and_say_what_the_best_is_over():
+    table = _table()
+    lines = trades.plot_metric_vs_total(table, "max_gap")
+    try:
+        title = lines[0].axes.get_title()
+        assert "best over inclination, planes and phasing at each total" in title
+    finally:
+        plt.close(lines[0].axes.figure)
+    one = {name: np.asarray(col)[:1] for name, col in table.items()}
+    lines = trades.plot_metric_vs_total(one, "max_gap")
+    try:
+        ax = lines[0].axes
+        np.testing.assert_array_equal(ax.get_xticks(), [12])  # not 11.4 ... 12.6
+        assert "best over" not in ax.get_title()  # nothing else varies
+    finally:
+        plt.close(ax.figure)
+    one["meets"] = np.array([True])
+    mesh = trades.plot_minimum_total_map(one)
+    try:
+        np.testing.assert_array_equal(mesh.colorbar.get_ticks(), [12])  # not 9.6 ... 10.4
+    finally:
+        plt.close(mesh.axes.figure)

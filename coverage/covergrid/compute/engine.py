@@ -233,7 +233,6 @@ def compute_coverage(
         (k, lat, lon)), with cell bounds, cell areas and CF attributes.
     """
     import dask
-    import dask.array as da
 
     if isinstance(epoch, str):
         epoch = parse_epoch(epoch)
@@ -257,6 +256,8 @@ def compute_coverage(
         # run the band tasks and assemble with numpy: no dask-array graph to optimise
         stack = np.concatenate(_compute_tasks(tasks, scheduler, progress), axis=1)
     else:
+        import dask.array as da  # about 0.5 s of imports, only for a lazy result
+
         parts = [da.from_delayed(t, shape=(depth, b[1] - b[0], n_lon), dtype=np.float64)
                  for t, b in zip(tasks, bands, strict=True)]
         stack = da.concatenate(parts, axis=1)
@@ -321,13 +322,30 @@ def _compute_tasks(tasks: list[Any], scheduler: str | Any, progress: bool) -> li
             raise CovergridError(
                 f"{scheduler!r} is not a scheduler here; use one of {', '.join(valid)} or pass "
                 "a dask.distributed Client", "compute.scheduler")
-        kwargs: dict[str, Any] = {"scheduler": scheduler}
+        # the local schedulers' functions, not their names: given a name, dask imports
+        # dask.distributed to look for a default client (about 0.3 s of a run's start-up)
+        kwargs: dict[str, Any] = {"scheduler": _local_scheduler(scheduler)}
     else:  # a dask.distributed Client
         kwargs = {"scheduler": scheduler}
     if progress:
         with _BandProgress({t.key for t in tasks}):
             return list(dask.compute(*tasks, **kwargs))
     return list(dask.compute(*tasks, **kwargs))
+
+
+def _local_scheduler(name: str) -> Any:
+    """The get function of a local dask scheduler by its name."""
+    if name == "threads":
+        import dask.threaded
+
+        return dask.threaded.get
+    if name == "synchronous":
+        import dask.local
+
+        return dask.local.get_sync
+    import dask.multiprocessing
+
+    return dask.multiprocessing.get
 
 
 class _BandProgress:

@@ -20,11 +20,12 @@ step are applied in time order, so a hand-over between two satellites opens a ga
 when the first leaves before the second arrives. Every metric is an integral over these
 times: ``coverage_fraction`` is ``(T - sum of gaps) / T``, the level histogram behind
 ``nfold_fraction``, ``min/mean/max_in_view`` is time-weighted, passes are counted with the
-sub-step ones and their durations are refined. Accuracy, measured against sampling at 1 s
-and at 0.1 s (tests/test_kernel_passes.py): at steps up to 120 s in LEO gap statistics agree
-with 1 s sampling within its own 1 s; a pass or gap shorter than about a second can be
-missed or found by either, and the shortest passes (well under a second at a 60 s step,
-about a second at 120 s) are below the interpolation's accuracy.
+sub-step ones and their durations are refined. Accuracy, measured against sampling at 1 s,
+0.25 s and 0.1 s (tests/test_kernel_passes.py; README, Model limits): at steps up to 60 s in
+LEO gap statistics agree with the fine sampling to its own resolution. The interpolated
+position's error grows as the fourth power of the step (about r (omega h)^4 / 384, 0.3 m at
+60 s and 5 m at 120 s in LEO), so a grazing pass that rises less than about 0.001 deg above
+the mask (a second or two long) can be missed at 120 s.
 
 With ``refine_transitions=False`` who is in view is found at the samples ``t_0 .. t_(N-1)``
 and held until the next (sample and hold): every duration is good to one step, a pass or

@@ -5,7 +5,33 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass
 from typing import Any
 
-__all__ = ["Requirement"]
+__all__ = ["Requirement", "meets_threshold"]
+
+
+def meets_threshold(values: Any, sense: str, threshold: float) -> Any:
+    """Which values meet a threshold: ``values <= threshold`` (``"at_most"``) or
+    ``values >= threshold`` (``"at_least"``); NaN never meets (the one rule, used by the
+    verdict and by every figure that marks where a requirement is not met).
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        Metric values [metric units].
+    sense : str
+        ``"at_most"`` or ``"at_least"``.
+    threshold : float
+        The limit [metric units].
+
+    Returns
+    -------
+    numpy.ndarray of bool
+        Same shape as ``values``.
+    """
+    if sense == "at_most":
+        return values <= threshold
+    if sense == "at_least":
+        return values >= threshold
+    raise ValueError(f"sense must be 'at_most' or 'at_least'; got {sense!r}")
 
 
 @dataclass(frozen=True)
@@ -48,6 +74,10 @@ class Requirement:
     def sense(self) -> str:
         """``"at_most"`` or ``"at_least"``."""
         return "at_most" if self.at_most is not None else "at_least"
+
+    def meets(self, values: Any) -> Any:
+        """Which of ``values`` meet the threshold (:func:`meets_threshold`)."""
+        return meets_threshold(values, self.sense, self.threshold)
 
     def as_dict(self) -> dict[str, Any]:
         """Plain data: ``metric``, ``at_most``, ``at_least``, ``area_fraction``, ``k``."""

@@ -25,13 +25,12 @@ References
 from __future__ import annotations
 
 import math
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 import xarray as xr
 
-if TYPE_CHECKING:
-    from covergrid.compute.requirement import Requirement
+from covergrid.compute.requirement import Requirement, meets_threshold
 
 __all__ = [
     "PERCENTILES",
@@ -277,7 +276,6 @@ def requirement_verdict(ds: xr.Dataset, metric: str, *, at_most: float | None = 
     if at_most is not None:
         threshold = float(at_most)
         achieved = weighted_quantile(np.where(np.isnan(x), np.inf, x), w, area_fraction)
-        ok = x <= threshold
         margin = threshold - achieved
         sense = "at_most"
     else:
@@ -286,9 +284,9 @@ def requirement_verdict(ds: xr.Dataset, metric: str, *, at_most: float | None = 
         # The highest floor v met over the share (largest v with area{x >= v} >= share),
         # computed as the lower quantile of -x.
         achieved = -weighted_quantile(np.where(np.isnan(x), np.inf, -x), w, area_fraction)
-        ok = x >= threshold
         margin = achieved - threshold
         sense = "at_least"
+    ok = meets_threshold(x, sense, threshold)
     share = float(w[ok & ~np.isnan(x)].sum() / total) if total > 0 else math.nan
     met = bool(margin >= 0.0)
     return {

@@ -141,12 +141,16 @@ class FigureJob:
         return self.draw(*self.data, folder, **self.options)
 
 
-def figure_jobs(study: ResolvedStudy, ds) -> list[FigureJob]:
+def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = None
+                ) -> list[FigureJob]:
     """The figures a study asks for, from its coverage Dataset, in the order of their files.
 
     One job per metric of ``maps.metrics`` (per fold ``k`` for ``nfold_fraction``), then the
-    ground tracks, then the latitude profile of the first four metrics (without
-    ``nfold_fraction``).
+    ground tracks (in the maps' projection), then the latitude profile of the first four
+    metrics (without ``nfold_fraction``). Every figure's title names the study; with a
+    requirement, every map and the profile mark where it is not met and end their caption
+    with the verdict (:mod:`covergrid.render.marks`; ``verdict`` is the summary's, computed
+    from ``ds`` when not given).
 
     Raises
     ------
@@ -162,8 +166,12 @@ def figure_jobs(study: ResolvedStudy, ds) -> list[FigureJob]:
         track_selection,
     )
     from covergrid.render import maps as render_maps
+    from covergrid.render.marks import requirement_mark
 
     caption = study_caption(study)
+    mark = (requirement_mark(study.requirement, ds, verdict)
+            if study.requirement is not None else None)
+    named = {"requirement": mark, "study": study.name}
     metrics = list(study.maps.metrics)
     render_maps.get_projection(study.maps.projection)
     jobs = []
@@ -182,8 +190,8 @@ def figure_jobs(study: ResolvedStudy, ds) -> list[FigureJob]:
             jobs.append(FigureJob(
                 f"map {metric}" + (f" k={fold}" if fold is not None else ""),
                 render_maps.save_metric_maps, (part, [metric]),
-                {"caption": caption, "projection": study.maps.projection, "k": fold},
-                cells))
+                {"caption": caption, "projection": study.maps.projection, "k": fold,
+                 **named}, cells))
 
     elements = study.elements
     period_s = float(np.max(2 * math.pi * np.sqrt(np.asarray(elements.a_km) ** 3
@@ -201,14 +209,15 @@ def figure_jobs(study: ResolvedStudy, ds) -> list[FigureJob]:
                 if shown.size < len(elements) else ""))
     jobs.append(FigureJob("ground tracks", save_ground_tracks, (lat, lon),
                           {"caption": caption, "title": title, "ids": drawn.ids,
-                           "planes": planes[shown], "max_sats": MAX_TRACKS}))
+                           "planes": planes[shown], "max_sats": MAX_TRACKS,
+                           "projection": study.maps.projection, "study": study.name}))
 
     profile = [m for m in metrics if m != "nfold_fraction"][:4] or ["coverage_fraction"]
     for metric in profile:
         render_maps.metric_field(ds, metric, None)
     part = ds[[*profile, "cell_area", *bounds]]
     jobs.append(FigureJob("latitude profile", profiles.save_latitude_profile, (part, profile),
-                          {"caption": caption}, cells))
+                          {"caption": caption, **named}, cells))
     return jobs
 
 
@@ -434,7 +443,8 @@ def draw_figures(jobs: Sequence[FigureJob], folder: str | os.PathLike, *,
     return [p for files in results for p in files]
 
 
-def write_figures(study: ResolvedStudy, ds, folder: Path) -> list[Path]:
+def write_figures(study: ResolvedStudy, ds, folder: Path,
+                  verdict: Mapping[str, Any] | None = None) -> list[Path]:
     """Draw every figure of a computed study into ``folder`` (see the module docstring)."""
-    jobs = figure_jobs(study, ds)
+    jobs = figure_jobs(study, ds, verdict)
     return draw_figures(jobs, folder, workers=figure_workers(study, jobs))

@@ -10,6 +10,7 @@ output folder, writes every output:
     DIR/<study>/summary.json, .csv    area-weighted global and per-band statistics, verdict
     DIR/<study>/study.resolved.yaml   the study with every default filled in
     DIR/<study>/maps/...              figures (when maps are on)
+    DIR/<study>/report.html           one self-contained document of all of it
 
 Nothing is written before the study is valid and the resources suffice. The output folder
 is then taken for the run (its lock, before computing: a second run of the same study into
@@ -110,8 +111,11 @@ def summarise_study(study: ResolvedStudy, ds) -> dict[str, Any]:
 
 
 def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = True,
-                      summary: dict | None = None) -> tuple[list[Path], dict]:
-    """Write every output file of a computed study into ``folder`` (a staging folder).
+                      summary: dict | None = None, report: bool = True
+                      ) -> tuple[list[Path], dict]:
+    """Write every output file of a computed study into ``folder`` (a staging folder):
+    the data files, the figures (``maps``) and last ``report.html`` (``report``), which
+    embeds the figures written before it.
 
     Returns
     -------
@@ -131,12 +135,20 @@ def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = Tr
     if maps:
         from covergrid.pipeline.figures import write_figures
 
-        files += write_figures(study, ds, folder)
+        files += write_figures(study, ds, folder, summary.get("requirement"))
+    if report:
+        from covergrid.pipeline import report as run_report
+
+        context = run_report.report_context(
+            study, "run", files, folder, summary=summary,
+            verdict=run_report.run_verdict(summary.get("requirement")))
+        files.append(run_report.write_report(folder, context))
     return files, summary
 
 
 def write_outputs(study: ResolvedStudy, ds, out_root: str | Path, *, maps: bool = True,
-                  summary: dict | None = None) -> tuple[Path, list[Path], dict]:
+                  summary: dict | None = None, report: bool = True
+                  ) -> tuple[Path, list[Path], dict]:
     """Write every output of a computed study into ``out_root/<study>/``, replacing the
     folder whole (:class:`covergrid.io.ResultFolder`).
 
@@ -148,7 +160,8 @@ def write_outputs(study: ResolvedStudy, ds, out_root: str | Path, *, maps: bool 
     from covergrid import io
 
     with io.ResultFolder(out_root, study.name) as folder:
-        files, summary = write_study_files(study, ds, folder.path, maps=maps, summary=summary)
+        files, summary = write_study_files(study, ds, folder.path, maps=maps, summary=summary,
+                                           report=report)
         files = [folder.final(f) for f in files]
     return folder.target, files, summary
 
@@ -167,7 +180,7 @@ def dataset_attrs(study: ResolvedStudy) -> dict[str, Any]:
 
 def run_study(study: Study | ResolvedStudy, out_dir: str | Path | None = None, *,
               progress: bool = False, scheduler: str | None = None, maps: bool = True,
-              force: bool = False) -> RunResult:
+              force: bool = False, report: bool = True) -> RunResult:
     """Compute a study, summarise it and (given ``out_dir``) write every output.
 
     Parameters
@@ -185,6 +198,8 @@ def run_study(study: Study | ResolvedStudy, out_dir: str | Path | None = None, *
         Draw the figures (when writing outputs).
     force : bool
         Run even if the memory estimate exceeds the limit (the work limits still hold).
+    report : bool
+        Write ``report.html`` (when writing outputs).
 
     Returns
     -------
@@ -209,7 +224,7 @@ def run_study(study: Study | ResolvedStudy, out_dir: str | Path | None = None, *
         ds = _compute(resolved, progress)
         summary = summarise_study(resolved, ds)
         files, summary = write_study_files(resolved, ds, folder.path, maps=maps,
-                                           summary=summary)
+                                           summary=summary, report=report)
         files = [folder.final(f) for f in files]
     return RunResult(ds, summary, folder.target, files)
 
@@ -241,7 +256,7 @@ def run(study: Study | ResolvedStudy | str | Path, out_dir: str | Path | None = 
     progress : bool
         Show a progress bar.
     **kwargs
-        ``scheduler``, ``maps``, ``force`` of :func:`run_study`.
+        ``scheduler``, ``maps``, ``force``, ``report`` of :func:`run_study`.
 
     Returns
     -------

@@ -136,13 +136,45 @@ def _projection_name(projection) -> str | None:
     return projection if isinstance(projection, str) else None
 
 
-def prepare_map_axes(ax, projection_name):
-    """Extent, polar circle boundary, coastlines and gridlines for one map axes."""
+def polar_edge_deg(projection_name: str, lat_edges) -> float:
+    """Latitude where a polar view stops [deg]: the data's edge nearest the equator, at
+    most :data:`_POLAR_EDGE_LAT_DEG` from it (further out the view is mostly distortion)."""
+    north = projection_name == "polar_north"
+    lats = np.asarray(lat_edges, dtype=float)
+    lats = lats[lats >= 0] if north else lats[lats <= 0]
+    default = _POLAR_EDGE_LAT_DEG if north else -_POLAR_EDGE_LAT_DEG
+    if lats.size < 2:  # no data in this hemisphere: the usual view
+        return default
+    edge = float(lats.min()) if north else float(lats.max())
+    return max(edge, default) if north else min(edge, default)
+
+
+#: Spacing of the parallels on a polar view [deg] (stated under the map: no inline labels).
+POLAR_PARALLEL_STEP_DEG = 10.0
+
+
+def prepare_map_axes(ax, projection_name, lat_edges=None):
+    """Extent, polar circle boundary, coastlines and gridlines for one map axes.
+
+    Parameters
+    ----------
+    ax : cartopy GeoAxes
+        The map.
+    projection_name : str or None
+        Name from :data:`PROJECTIONS` (None: a caller's own projection, left as it is).
+    lat_edges : array_like, optional
+        Latitude edges of the data [deg]: a polar view stops at the data's edge
+        (:func:`polar_edge_deg`); a world map of a latitude band shows that band (with a
+        margin of :data:`BAND_MARGIN_DEG`), not the whole globe.
+    """
     import cartopy.crs as ccrs
     import matplotlib.path as mpath
+    import matplotlib.ticker as mticker
 
-    if projection_name in ("polar_north", "polar_south"):
-        edge = _POLAR_EDGE_LAT_DEG if projection_name == "polar_north" else -_POLAR_EDGE_LAT_DEG
+    polar = projection_name in ("polar_north", "polar_south")
+    if polar:
+        edges = lat_edges if lat_edges is not None else []
+        edge = polar_edge_deg(projection_name, edges)
         pole = 90.0 if projection_name == "polar_north" else -90.0
         ax.set_extent([-180, 180, min(edge, pole), max(edge, pole)], crs=ccrs.PlateCarree())
         theta = np.linspace(0, 2 * np.pi, 200)
@@ -151,7 +183,13 @@ def prepare_map_axes(ax, projection_name):
     elif projection_name in (None, "orthographic"):
         pass
     else:
-        ax.set_global()
+        lo, hi = ((float(np.min(lat_edges)), float(np.max(lat_edges)))
+                  if lat_edges is not None else (-90.0, 90.0))
+        if hi - lo < 180.0 - 2 * BAND_MARGIN_DEG:
+            ax.set_extent([-180, 180, max(lo - BAND_MARGIN_DEG, -90.0),
+                           min(hi + BAND_MARGIN_DEG, 90.0)], crs=ccrs.PlateCarree())
+        else:
+            ax.set_global()
     # A thin light halo under the dark line keeps the coast legible on dark and light cells alike.
     coast = [coastline_geometry("110m")]
     ax.add_geometries(coast, crs=ccrs.PlateCarree(), facecolor="none", edgecolor="white",
@@ -162,14 +200,29 @@ def prepare_map_axes(ax, projection_name):
     gl = ax.gridlines(crs=gridline_crs(), draw_labels=True, linewidth=0.3, color="0.4",
                       alpha=0.6, linestyle="--", zorder=4,
                       x_inline=False if rectangular else None,
-                      y_inline=False if rectangular else None)
+                      y_inline=False if rectangular else None,
+                      **({"ylocs": mticker.MultipleLocator(POLAR_PARALLEL_STEP_DEG)}
+                         if polar else {}))
     gl.top_labels = False
     gl.right_labels = False
     if projection_name == "orthographic":  # meridian labels crowd at the limb; keep latitudes
         gl.bottom_labels = False
+    if polar:
+        # latitude labels inside a polar view sit on the data: say the parallels instead,
+        # in the corner the round map leaves empty
+        gl.y_inline = False  # parallels never meet the round edge: meridians labelled only
+        gl.top_labels = gl.right_labels = True
+        hemisphere = "N" if projection_name == "polar_north" else "S"
+        ax.text(0.0, 0.0, f"parallels every {POLAR_PARALLEL_STEP_DEG:g}\u00b0;\nedge "
+                f"{abs(edge):g}\u00b0 {hemisphere}", transform=ax.transAxes, ha="left",
+                va="bottom", fontsize=7, color="0.25")
     gl.xlabel_style = {"size": 7}
     gl.ylabel_style = {"size": 7}
     return gl
+
+
+#: Latitude margin around a latitude band on a world map [deg].
+BAND_MARGIN_DEG = 5.0
 
 
 def _edges_from_bounds(bounds: np.ndarray) -> np.ndarray:
@@ -199,7 +252,7 @@ def metric_field(ds, metric: str, k: int | None):
 
 def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=None,
                     caption=None, cmap=None, k=None, centre_lon_deg: float = 0.0,
-                    centre_lat_deg: float = 0.0):
+                    centre_lat_deg: float = 0.0, requirement=None, study: str | None = None):
     """Draw one per-cell metric as a map with coastlines, gridlines and a colour bar.
 
     Parameters
@@ -212,17 +265,24 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
         Axes to draw on (its projection is kept). Without one a report figure of
         :data:`MAP_FIGSIZE_IN` is made, with the caption and footer at the bottom.
     projection : str or cartopy.crs.Projection
-        Name from :data:`PROJECTIONS` (``"robinson"`` default) or a cartopy projection.
+        Name from :data:`PROJECTIONS` (``"robinson"`` default) or a cartopy projection. A
+        world projection of a latitude band shows the band; a polar view stops at the data.
     title : str, optional
-        Title; the metric's long name by default.
+        Title; the metric's long name by default (followed by the study's name).
     caption : str, optional
         Caption under the map (for example from :func:`design_caption`); only on a new figure.
     cmap : str or Colormap, optional
-        Colour map override (otherwise the rule in :mod:`covergrid.render.style`).
+        Colour map override (otherwise the rules of :mod:`covergrid.render.scales`).
     k : int, optional
         Fold for ``nfold_fraction`` (required there).
     centre_lon_deg, centre_lat_deg : float
         Centre of the projection [deg].
+    requirement : Requirement or RequirementMark, optional
+        The study's requirement (:mod:`covergrid.render.marks`): the cells not meeting it
+        are hatched; on the map of its own metric the threshold is a contour and the scale
+        two-tone; the caption ends with the verdict.
+    study : str, optional
+        The study's name, for the title.
 
     Returns
     -------
@@ -237,13 +297,19 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
     import cartopy.crs as ccrs
     import matplotlib.pyplot as plt
 
+    from covergrid.compute.quantities import format_values
+    from covergrid.render import marks, scales
+
     da, fold = metric_field(ds, metric, k)
     units = da.attrs.get("units")
     values = np.asarray(da.values, dtype=float)
+    mark = marks.as_mark(requirement, ds)
+    on_metric = mark is not None and mark.is_on(metric, fold)
     unit = style.display_unit(metric, units, values)
     shown = np.ma.masked_invalid(values * unit.factor)
     lon_edges = _edges_from_bounds(ds["lon_bnds"].values)
     lat_edges = _edges_from_bounds(ds["lat_bnds"].values)
+    plate = ccrs.PlateCarree()
 
     with style.report_style():
         if ax is None:
@@ -255,22 +321,44 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
         else:
             fig, own_figure = ax.figure, False
         name = _projection_name(projection) if own_figure else None
-        prepare_map_axes(ax, name)
+        prepare_map_axes(ax, name, lat_edges)
 
-        colormap = style.colormap_for(metric, units, cmap=cmap)
-        norm, ticks, extend = _norm_for(metric, units, shown)
-        mesh = ax.pcolormesh(lon_edges, lat_edges, shown, transform=ccrs.PlateCarree(),
-                             cmap=colormap, norm=norm, shading="flat", edgecolors="face",
-                             linewidth=0, zorder=1, rasterized=True)
+        threshold = None
+        if on_metric and mark is not None:
+            threshold = mark.threshold * unit.factor
+        scale = scales.colour_scale(metric, units, shown, cmap=cmap, threshold=threshold,
+                                    sense=mark.sense if mark is not None else None)
+        mesh = ax.pcolormesh(lon_edges, lat_edges, shown, transform=plate,
+                             cmap=scale.cmap, norm=scale.norm, shading="flat",
+                             edgecolors="face", linewidth=0, zorder=1, rasterized=True)
+        key = None
+        if mark is not None and mark.fails is not None and mark.fails.shape == values.shape:
+            hatched = marks.hatch_cells(ax, lon_edges, lat_edges, mark.fails, transform=plate)
+            threshold_text = None
+            if threshold is not None and scale.decision_level is not None:
+                contour = marks.threshold_contour(
+                    ax, np.asarray(ds["lon"].values, dtype=float),
+                    np.asarray(ds["lat"].values, dtype=float), shown.filled(np.nan),
+                    scale.decision_level, transform=plate)
+                if contour is not None:  # the key names only what is drawn
+                    threshold_text = format_values([mark.threshold], unit)[0]
+            if hatched is not None or threshold_text is not None:
+                key = marks.key_handles(mark, threshold_text=threshold_text,
+                                        hatched=hatched is not None)
         if own_figure:
             # Put the colour bar beside the map as drawn (narrow projections leave room).
             ax.apply_aspect()
             box = ax.get_position()
             cax = fig.add_axes((min(box.x1 + 0.03, 0.86), box.y0 + 0.1 * box.height, 0.022,
                                 0.8 * box.height))
-            cbar = fig.colorbar(mesh, cax=cax, ticks=ticks, extend=extend)
+            cbar = fig.colorbar(mesh, cax=cax, ticks=scale.ticks, extend=scale.extend)
         else:
-            cbar = fig.colorbar(mesh, ax=ax, shrink=0.8, ticks=ticks, extend=extend)
+            cbar = fig.colorbar(mesh, ax=ax, shrink=0.8, ticks=scale.ticks, extend=scale.extend)
+        if scale.tick_labels is not None and scale.ticks is not None:
+            cbar.set_ticks(scale.ticks, labels=scale.tick_labels)
+            cbar.ax.minorticks_off()
+            if scale.threshold_tick is not None:
+                cbar.ax.get_yticklabels()[scale.threshold_tick].set_fontweight("bold")
         cbar.set_label(style.metric_label(metric, da.attrs, unit, k=fold))
         cbar.outline.set_linewidth(0.5)
         if cbar.solids is not None:  # matplotlib rasterises long colour bars; keep it vector
@@ -280,55 +368,12 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
             title = style.fold_text(str(da.attrs.get("long_name") or metric.replace("_", " ")),
                                     fold)
             title = title[:1].upper() + title[1:]
-        ax.set_title(title, pad=8)
+        ax.set_title(style.figure_title(title, study), pad=8)
         if own_figure:
-            style.add_caption(fig, caption)
+            if mark is not None:
+                caption = "\n".join(c for c in (caption, mark.caption()) if c)
+            style.add_caption(fig, caption, key=key)
     return mesh
-
-
-# Integer-valued data spanning at most this many values get one discrete colour per value.
-_MAX_DISCRETE_LEVELS = 16
-
-
-# A duration map whose largest values are outliers (e.g. never-seen polar cells with a gap
-# equal to the span) is scaled to this percentile of the cells, with an arrow on the colour
-# bar for the cells above it, so the structure elsewhere stays readable.
-_OUTLIER_PERCENTILE = 98.0
-_OUTLIER_RATIO = 1.5
-
-
-def _norm_for(metric, units, shown):
-    """Colour normalisation, ticks and colour-bar extension for a field.
-
-    One colour per integer for small counts; otherwise continuous, with the top clipped to the
-    98th percentile (and ``extend="max"``) when the maximum exceeds 1.5 times it for a
-    duration metric.
-    """
-    import matplotlib.colors as mcolors
-
-    data = shown.compressed()
-    if data.size == 0:
-        return mcolors.Normalize(vmin=0.0, vmax=1.0), None, "neither"
-    lo, hi = float(data.min()), float(data.max())
-    kind = style.metric_kind(metric, units)
-    integer = kind == "count" and np.all(data == np.round(data))
-    if integer and hi - lo + 1 <= _MAX_DISCRETE_LEVELS:
-        levels = np.arange(lo, hi + 1)
-        return (mcolors.BoundaryNorm(np.append(levels, hi + 1) - 0.5, ncolors=256), levels,
-                "neither")
-    if hi == lo:
-        if kind == "fraction":
-            # A uniform fraction (e.g. no cell ever 2-fold covered): the full 0-100 % scale, so
-            # the colour reads as the value and the bar shows no impossible negative percent.
-            return mcolors.Normalize(vmin=0.0, vmax=100.0), None, "neither"
-        # Otherwise centre it in the colour range, never below zero for a non-negative field.
-        return (mcolors.Normalize(vmin=max(lo - 0.5, 0.0) if lo >= 0 else lo - 0.5,
-                                  vmax=hi + 0.5), None, "neither")
-    if kind == "duration":
-        top = float(np.percentile(data, _OUTLIER_PERCENTILE))
-        if top > lo and hi > _OUTLIER_RATIO * top:
-            return mcolors.Normalize(vmin=lo, vmax=top), None, "max"
-    return mcolors.Normalize(vmin=lo, vmax=hi), None, "neither"
 
 
 def _map_jobs(ds, metrics: Iterable[str], k):
@@ -343,7 +388,8 @@ def _map_jobs(ds, metrics: Iterable[str], k):
 
 def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None,
                      projection="robinson", k: int | None = None,
-                     titles: Mapping[str, str] | None = None) -> list[Path]:
+                     titles: Mapping[str, str] | None = None, requirement=None,
+                     study: str | None = None) -> list[Path]:
     """Write a PNG (200 dpi) and a vector PDF map of each metric under ``out_dir/maps/``.
 
     Parameters
@@ -363,6 +409,10 @@ def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None
         named ``<metric>_k<k>``.
     titles : mapping, optional
         Title per metric name, overriding the default.
+    requirement : Requirement or RequirementMark, optional
+        The study's requirement, marked on every map (see :func:`plot_metric_map`).
+    study : str, optional
+        The study's name, for the titles.
 
     Returns
     -------
@@ -387,7 +437,7 @@ def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None
     for metric, fold, stem in jobs:
         title = (titles or {}).get(metric)
         mesh = plot_metric_map(ds, metric, projection=projection, title=title, caption=caption,
-                               k=fold)
+                               k=fold, requirement=requirement, study=study)
         fig = mesh.axes.figure
         try:
             written += style.save_png_and_pdf(fig, maps_dir, stem)

@@ -25,6 +25,7 @@ __all__ = [
 PANEL_SIZE_IN = (2.6, 4.2)
 _MARGIN_IN = (0.9, 1.9)  # extra width (left axis labels) and height (title, caption, footer)
 _BOTTOM_IN = 1.25  # room under the panels for tick labels, axis label, caption and footer
+_ROWS_HATCHED = "latitudes with cells not meeting the requirement"
 
 
 def latitude_profile(ds, metric: str, *, k: int | None = None) -> dict[str, np.ndarray]:
@@ -77,7 +78,8 @@ def _figsize(n_panels: int) -> tuple[float, float]:
 
 
 def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
-                          title: str | None = None, caption: str | None = None):
+                          title: str | None = None, caption: str | None = None,
+                          requirement=None, study: str | None = None):
     """Draw the zonal mean (line) and min/max envelope (band) of each metric against latitude.
 
     Parameters
@@ -92,6 +94,12 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
         Figure title; "Latitude profile" by default.
     caption : str, optional
         Caption under the panels.
+    requirement : Requirement or RequirementMark, optional
+        The study's requirement (:mod:`covergrid.render.marks`): on every panel the latitude
+        rows holding a cell that does not meet it are hatched; the panel of its metric shows
+        the threshold as a dashed line; the caption ends with the verdict.
+    study : str, optional
+        The study's name, for the title.
 
     Returns
     -------
@@ -100,6 +108,11 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
     """
     import matplotlib.pyplot as plt
 
+    from covergrid.compute.quantities import format_values
+    from covergrid.render import marks
+
+    mark = marks.as_mark(requirement, ds)
+    lat_edges = np.concatenate([ds["lat_bnds"].values[:, 0], ds["lat_bnds"].values[-1:, 1]])
     metrics = list(metrics)
     if not metrics:
         raise CovergridError("give at least one metric", field="metrics")
@@ -112,6 +125,7 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
     tick = 30.0 if lat_hi - lat_lo > 90 else 15.0 if lat_hi - lat_lo > 40 else 10.0
     lat_ticks = np.arange(np.ceil(lat_lo / tick) * tick, lat_hi + tick / 2, tick)
     width, height = _figsize(len(metrics))
+    any_hatched, threshold_line = False, None
     with style.report_style():
         fig = plt.figure(figsize=(width, height))
         left = 0.7 / width
@@ -126,6 +140,14 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
             unit = style.display_unit(metric, attrs.get("units"), ds[metric].values)
             colour = style.line_colour(metric, attrs.get("units"))
             lat = prof["lat_deg"]
+            if mark is not None and mark.fails is not None:
+                any_hatched = bool(marks.hatch_rows(ax, lat_edges, mark.fails)) or any_hatched
+            if mark is not None and mark.is_on(metric, fold):
+                threshold_text = format_values([mark.threshold], unit)[0]
+                line = ax.axvline(mark.threshold * unit.factor, color="black",
+                                  linestyle="--", linewidth=1.0, zorder=3)
+                line.set_gid("covergrid-requirement-threshold")
+                threshold_line = threshold_text
             ax.fill_betweenx(lat, prof["min"] * unit.factor, prof["max"] * unit.factor,
                              color=colour, alpha=0.25, linewidth=0, label="min to max")
             ax.plot(prof["mean"] * unit.factor, lat, color=colour, label="area-weighted mean")
@@ -139,8 +161,14 @@ def plot_latitude_profile(ds, metrics: Sequence[str], *, k: int | None = None,
                 ax.tick_params(labelleft=False)
             axes.append(ax)
         axes[0].legend(loc="lower left", fontsize=6.5, frameon=False)
-        fig.suptitle(title or "Latitude profile", y=1.0 - 0.15 / height, va="top")
-        style.add_caption(fig, caption, width_chars=int(14 * width))
+        fig.suptitle(style.figure_title(title or "Latitude profile", study),
+                     y=1.0 - 0.15 / height, va="top")
+        key = None
+        if mark is not None:
+            caption = "\n".join(c for c in (caption, mark.caption()) if c)
+            key = marks.key_handles(mark, threshold_text=threshold_line, line="dashed",
+                                    hatched=_ROWS_HATCHED if any_hatched else False) or None
+        style.add_caption(fig, caption, key=key)
     return axes
 
 
@@ -162,7 +190,7 @@ def save_latitude_profile(ds, metrics: Sequence[str], out_dir, *,
     caption : str, optional
         Caption text.
     **kwargs
-        Passed to :func:`plot_latitude_profile` (k, title).
+        Passed to :func:`plot_latitude_profile` (k, title, requirement, study).
 
     Returns
     -------

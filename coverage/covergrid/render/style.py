@@ -30,11 +30,11 @@ import contextlib
 import os
 import textwrap
 from collections.abc import Iterator, Mapping
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
+from covergrid.compute.quantities import DisplayUnit, unit_for
 from covergrid.io import save_figure
 
 __all__ = [
@@ -45,7 +45,9 @@ __all__ = [
     "add_caption",
     "colormap_for",
     "display_unit",
+    "figure_title",
     "fold_text",
+    "is_integer_kind",
     "is_lower_better",
     "line_colour",
     "luminance",
@@ -68,9 +70,8 @@ FOOTER = "Design study result: secular J2, mean elements; not for operations."
 # Font sizes [pt] of the report style.
 _FONT_PT = {"base": 9.0, "title": 11.0, "caption": 8.0, "footer": 6.5}
 
-_CAPTION_WRAP_CHARS = 120  # characters per caption line at the map figure width
-
-_FAMILY_CMAP = {"fraction": "viridis", "duration": "cividis", "count": "magma"}
+_FAMILY_CMAP = {"fraction": "viridis", "duration": "cividis", "count": "magma",
+                "level": "magma"}
 
 
 @contextlib.contextmanager
@@ -88,6 +89,7 @@ def report_style() -> Iterator[None]:
         "axes.linewidth": 0.6,
         "lines.linewidth": 1.2,
         "savefig.dpi": DPI,
+        "hatch.linewidth": 0.5,
     }
     with mpl.rc_context(rc):
         yield
@@ -106,13 +108,25 @@ def metric_kind(name: str, units: str | None) -> str:
     Returns
     -------
     str
-        ``"duration"`` (units "s"), ``"fraction"`` (unitless ``*_fraction``) or ``"count"``.
+        The kind in ``covergrid.compute.metrics.METRICS`` (``"fraction"``, ``"duration"``,
+        ``"count"`` or ``"level"``) for a registered metric; otherwise ``"duration"`` (units
+        "s"), ``"fraction"`` (``*_fraction``) or ``"count"``.
     """
+    from covergrid.compute.metrics import METRICS
+
+    info = METRICS.get(name)
+    if info is not None:
+        return info.kind
     if units == "s":
         return "duration"
     if name.endswith("_fraction"):
         return "fraction"
     return "count"
+
+
+def is_integer_kind(name: str, units: str | None) -> bool:
+    """Whether a metric's kind is whole numbers by nature (counts, satellites in view)."""
+    return metric_kind(name, units) in ("count", "level")
 
 
 def is_lower_better(name: str) -> bool:
@@ -204,19 +218,6 @@ def luminance(rgba) -> float:
     return float(lin @ np.array([0.2126, 0.7152, 0.0722]))
 
 
-@dataclass(frozen=True)
-class DisplayUnit:
-    """How to show a quantity: ``shown = stored * factor``, labelled ``label``."""
-
-    label: str  # "min", "h", "%", "" (plain number)
-    factor: float
-
-
-# Seconds per display unit; a unit is used while the data stay <= 180 of it.
-_TIME_UNITS_S = (("s", 1.0), ("min", 60.0), ("h", 3600.0), ("d", 86400.0))
-_MAX_IN_UNIT = 180.0
-
-
 def display_unit(name: str, units: str | None, values) -> DisplayUnit:
     """Choose the display unit of a quantity from its stored units and data range.
 
@@ -232,21 +233,12 @@ def display_unit(name: str, units: str | None, values) -> DisplayUnit:
     Returns
     -------
     DisplayUnit
-        Label and multiplication factor (see the module docstring for the rule).
+        Label and multiplication factor (the rule of :mod:`covergrid.compute.quantities`).
     """
-    if units == "s":
-        finite = np.asarray(values, dtype=float)
-        finite = finite[np.isfinite(finite)]
-        largest_s = float(np.max(np.abs(finite))) if finite.size else 0.0
-        for label, seconds in _TIME_UNITS_S:
-            if largest_s <= _MAX_IN_UNIT * seconds:
-                return DisplayUnit(label, 1.0 / seconds)
-        return DisplayUnit("d", 1.0 / 86400.0)
-    if metric_kind(name, units) == "fraction" and units in (None, "1", ""):
-        return DisplayUnit("%", 100.0)
-    if units in (None, "1", ""):
-        return DisplayUnit("", 1.0)
-    return DisplayUnit(units, 1.0)
+    finite = np.asarray(values, dtype=float)
+    finite = finite[np.isfinite(finite)]
+    largest = float(np.max(np.abs(finite))) if finite.size else 0.0
+    return unit_for(name, units, largest, metric_kind(name, units))
 
 
 def metric_label(name: str, attrs: Mapping, unit: DisplayUnit, *, k: int | None = None) -> str:
@@ -299,27 +291,146 @@ def fold_text(text: str, k: int | None) -> str:
     return f"{text} (k = {int(k)})"
 
 
-def add_caption(fig, caption: str | None, *, footer: str = FOOTER, width_chars=None) -> None:
-    """Write the caption (wrapped) and the footer line at the bottom of a figure.
+def figure_title(text: str, study: str | None) -> str:
+    """A figure's title naming the study: ``"Maximum gap \u2014 study demo"``."""
+    return f"{text} \u2014 study {study}" if study else text
+
+
+def _wrap_to_width(fig, renderer, text: str, width_px: float, **text_kw) -> str:
+    """Wrap ``text`` (paragraphs split at newlines) so that no line is wider than
+    ``width_px`` as measured by ``renderer`` in the figure's font."""
+    probe = fig.text(0, 0, "", **text_kw)
+    try:
+        def widest(lines: list[str]) -> float:
+            probe.set_text("\n".join(lines))
+            return probe.get_window_extent(renderer).width
+
+        out = []
+        for paragraph in text.split("\n"):
+            if not paragraph.strip():
+                continue
+            chars = max(len(paragraph), 1)
+            one_line = widest([paragraph])
+            width = max(int(chars * width_px / max(one_line, 1.0)), 10)
+            lines = textwrap.wrap(paragraph, width=width) or [""]
+            while widest(lines) > width_px and width > 10:  # measured, not guessed
+                width = int(width * 0.95)
+                lines = textwrap.wrap(paragraph, width=width)
+            out += lines
+        return "\n".join(out)
+    finally:
+        probe.remove()
+
+
+#: Gaps of the measured layout [in]: figure edge to text, footer to caption, caption to
+#: the lowest drawn element (tick labels, colour bar, legend).
+_EDGE_IN = 0.10
+_TEXT_GAP_IN = 0.05
+_CONTENT_GAP_IN = 0.14
+
+
+def add_caption(fig, caption: str | None, *, footer: str = FOOTER, key=None) -> None:
+    """Write the caption and the footer at the bottom of a figure in a measured layout.
+
+    The footer sits at the bottom edge, the caption (wrapped to the figure width as
+    measured in its font; newlines start paragraphs) above it and the key (a legend of the
+    figure's marks, if any) above the caption. Then every drawn element
+    (axes with their tick and gridline labels, colour bars, legends, titles) is measured:
+    where one would reach into the caption or beyond an edge of the figure, the figure
+    grows by what is missing and keeps every axes at its size, so a long caption can never
+    overprint the footer, the map or its labels, and nothing is cut at an edge; empty space
+    above and below is trimmed (the width never shrinks). Call it last, once everything
+    else is drawn.
 
     Parameters
     ----------
     fig : matplotlib.figure.Figure
-        Figure; the caller leaves room at the bottom (see the figure layouts).
+        The figure.
     caption : str or None
         Caption text; None writes only the footer.
     footer : str
         Footer line, :data:`FOOTER` by default.
-    width_chars : int, optional
-        Wrap width [characters]; scaled from the figure width when omitted.
+    key : list of matplotlib artists, optional
+        Legend handles of the figure's marks (the requirement's hatching and threshold),
+        drawn in one row between the drawing and the caption.
     """
-    if width_chars is None:
-        width_chars = int(_CAPTION_WRAP_CHARS * fig.get_figwidth() / 8.0)
+    renderer = fig.canvas.get_renderer()
+    dpi = fig.dpi
+    caption_kw = {"ha": "left", "va": "bottom", "fontsize": _FONT_PT["caption"]}
+    footer_art = fig.text(0, 0, footer, ha="left", va="bottom", fontsize=_FONT_PT["footer"],
+                          color="0.35", style="italic", gid="covergrid-footer")
+    caption_art = None
     if caption:
-        text = "\n".join(textwrap.wrap(caption, width=width_chars))
-        fig.text(0.02, 0.105, text, ha="left", va="top", fontsize=_FONT_PT["caption"])
-    fig.text(0.02, 0.012, footer, ha="left", va="bottom", fontsize=_FONT_PT["footer"],
-             color="0.35", style="italic")
+        width_px = (fig.get_figwidth() - 2 * _EDGE_IN) * dpi
+        text = _wrap_to_width(fig, renderer, caption, width_px, **caption_kw)
+        caption_art = fig.text(0, 0, text, gid="covergrid-caption", **caption_kw)
+    legend = None
+    if key:
+        legend = fig.legend(handles=list(key), loc="lower left", ncols=len(key),
+                            frameon=False, fontsize=_FONT_PT["caption"], handlelength=2.2,
+                            borderaxespad=0.0, borderpad=0.0)
+        legend.set_gid("covergrid-key")
+    own = {id(footer_art), id(caption_art)}
+    for _ in range(4):  # each pass can only grow the figure; two settle every case seen
+        width_in, height_in = fig.get_figwidth(), fig.get_figheight()
+        footer_art.set_position((_EDGE_IN / width_in, _EDGE_IN / height_in))
+        footer_top = _EDGE_IN + footer_art.get_window_extent(renderer).height / dpi
+        text_top = footer_top
+        if caption_art is not None:
+            caption_art.set_position((_EDGE_IN / width_in,
+                                      (footer_top + _TEXT_GAP_IN) / height_in))
+            text_top = (footer_top + _TEXT_GAP_IN
+                        + caption_art.get_window_extent(renderer).height / dpi)
+        if legend is not None:
+            legend.set_bbox_to_anchor((_EDGE_IN / width_in, (text_top + _TEXT_GAP_IN)
+                                       / height_in), transform=fig.transFigure)
+            text_top += _TEXT_GAP_IN + legend.get_window_extent(renderer).height / dpi
+        boxes = [ax.get_tightbbox(renderer) for ax in fig.axes]
+        boxes += [t.get_window_extent(renderer) for t in fig.texts
+                  if id(t) not in own and t.get_text()]
+        boxes = [b for b in boxes if b is not None and b.width > 0]
+        if not boxes:
+            return
+        x0 = min(b.x0 for b in boxes) / dpi
+        x1 = max(b.x1 for b in boxes) / dpi
+        y0 = min(b.y0 for b in boxes) / dpi
+        y1 = max(b.y1 for b in boxes) / dpi
+        # the height fits the content (a map of a latitude band is shorter than the axes
+        # it was given); the width only grows, so figures of a kind keep their width
+        grow_bottom = text_top + _CONTENT_GAP_IN - y0
+        grow_top = y1 - (height_in - _EDGE_IN)
+        grow_left = _at_least_a_little(_EDGE_IN - x0)
+        grow_right = _at_least_a_little(x1 - (width_in - _EDGE_IN))
+        if max(abs(grow_bottom), abs(grow_top), grow_left, grow_right) < 0.5 / dpi:
+            return  # settled to under a pixel
+        _grow(fig, grow_left, grow_right, grow_bottom, grow_top)
+
+
+def _at_least_a_little(need_in: float) -> float:
+    """A margin to add sideways [in]: none for less than :data:`_SLACK_IN` (the edge gap
+    absorbs it), so a figure's width changes only when something would be cut."""
+    return need_in if need_in > _SLACK_IN else 0.0
+
+
+#: Sideways overrun the edge gap absorbs [in].
+_SLACK_IN = 0.05
+
+
+def _grow(fig, left_in: float, right_in: float, bottom_in: float, top_in: float) -> None:
+    """Enlarge a figure by the given margins [in] (a negative one trims), keeping every
+    axes and figure text at its size and place relative to the others."""
+    width_in, height_in = fig.get_figwidth(), fig.get_figheight()
+    new_w, new_h = width_in + left_in + right_in, height_in + bottom_in + top_in
+    for ax in fig.axes:
+        box = ax.get_position(original=True)
+        ax.set_position(((box.x0 * width_in + left_in) / new_w,
+                         (box.y0 * height_in + bottom_in) / new_h,
+                         box.width * width_in / new_w, box.height * height_in / new_h),
+                        which="both")
+    for text in fig.texts:  # the suptitle too
+        x, y = text.get_position()
+        text.set_position(((x * width_in + left_in) / new_w, (y * height_in + bottom_in) / new_h))
+    fig.set_size_inches(new_w, new_h, forward=False)
 
 
 def save_png_and_pdf(fig, folder, stem: str) -> list[Path]:

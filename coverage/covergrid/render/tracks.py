@@ -200,7 +200,7 @@ def _group_colours(groups: np.ndarray) -> list:
 def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, planes=None,
                        ax=None, projection="plate_carree", title: str | None = None,
                        caption: str | None = None, max_sats: int = 24,
-                       centre_lon_deg: float = 0.0):
+                       centre_lon_deg: float = 0.0, study: str | None = None):
     """Draw sub-satellite tracks on a map with coastlines, one colour per orbital plane.
 
     Parameters
@@ -221,6 +221,8 @@ def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, pl
         Draw at most this many satellites, spread evenly over the planes (the title says so).
     centre_lon_deg : float
         Central longitude of the projection [deg].
+    study : str, optional
+        The study's name, for the title.
 
     Returns
     -------
@@ -285,7 +287,7 @@ def plot_ground_tracks(lat_deg, lon_deg, *, ids: Sequence[str] | None = None, pl
             title = "Ground tracks"
             if shown.size < n_sat:
                 title += f" ({shown.size} of {n_sat} satellites)"
-        ax.set_title(title, pad=8)
+        ax.set_title(style.figure_title(title, study), pad=8)
         if any(line.get_label() and not line.get_label().startswith("_") for line in lines):
             ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False,
                       fontsize=7, title="start: \u25cf", title_fontsize=7)

@@ -42,6 +42,7 @@ from covergrid.render import style
 
 __all__ = [
     "TRADE_FIGSIZE_IN",
+    "best_over",
     "design_columns",
     "minimum_total_grid",
     "pareto_front",
@@ -49,6 +50,7 @@ __all__ = [
     "plot_minimum_total_map",
     "plot_pareto_front",
     "save_trade_figures",
+    "total_ticks",
 ]
 
 #: Size of a saved trade figure [in]; at 200 dpi a PNG is 1400 x 1100 pixels.
@@ -269,12 +271,50 @@ def plot_metric_vs_total(table, metric: str, *, by: str = "altitude_km",
         ax.set_xlabel("total satellites")
         ax.set_ylabel(label)
         ax.grid(True, linewidth=0.3, color="0.85")
+        total_ticks(ax, cols["total"])
         ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False,
                   title=by.replace("_km", " [km]").replace("_deg", " [deg]").replace("_", " "))
-        ax.set_title(title or f"{label.split(' [')[0].capitalize()} against constellation size")
+        over = best_over(table, by)
+        head = f"{label.split(' [')[0].capitalize()} against constellation size"
+        ax.set_title(title or (head + (f"\n(best over {over} at each total)" if over else "")))
         if own:
             style.add_caption(ax.figure, caption)
     return lines
+
+
+#: Columns a design table may sweep besides the total, with their names in titles.
+_SWEPT = (("altitude_km", "altitude"), ("inclination_deg", "inclination"),
+          ("min_elevation_deg", "minimum elevation"), ("planes", "planes"),
+          ("phasing", "phasing"))
+
+
+def best_over(table, by: str) -> str:
+    """The parameters a line of the size chart takes the best over: every swept column
+    with more than one value, besides ``by`` and the total ("inclination, planes and
+    phasing"); empty when there is none."""
+    present = design_columns(table, ["total"], optional=[c for c, _ in _SWEPT])
+    names = [name for column, name in _SWEPT
+             if column != by and column in present and np.unique(present[column]).size > 1]
+    if len(names) <= 1:
+        return "".join(names)
+    return ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def total_ticks(ax, totals) -> None:
+    """Ticks of a total-satellites axis: whole numbers only, each total swept when they are
+    few, and a sensible range around a single total (not 11.4 ... 12.6)."""
+    from matplotlib.ticker import FixedLocator, MaxNLocator
+
+    values = np.unique(np.asarray(totals, dtype=float)[np.isfinite(np.asarray(totals,
+                                                                             dtype=float))])
+    if values.size == 0:
+        return
+    if values.size <= 12:
+        ax.xaxis.set_major_locator(FixedLocator(values.tolist()))
+    else:
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+    pad = max(1.0, 0.05 * float(values[-1] - values[0]))
+    ax.set_xlim(values[0] - pad, values[-1] + pad)
 
 
 def plot_minimum_total_map(table, *, title: str | None = None, caption: str | None = None,
@@ -293,53 +333,81 @@ def plot_minimum_total_map(table, *, title: str | None = None, caption: str | No
     Returns
     -------
     matplotlib.collections.QuadMesh
-        One cell per (inclination, altitude) pair, coloured by the minimum total (fewer
-        satellites brighter, following the report colour rule); each cell is labelled with the
-        number, "none" (hatched grey: evaluated, nothing met the requirement) or left blank
-        (not evaluated).
+        One cell per (inclination, altitude) pair, coloured by the minimum total (one colour
+        per total found, fewer satellites brighter, following the report colour rule; the
+        colour bar is discrete); each cell is labelled with the number, "none" (hatched
+        grey: evaluated, nothing up to the largest total swept met the requirement) or left
+        blank (not evaluated). An answer at the smallest total swept is marked "\u2264"
+        and explained in a note under the chart: a smaller total was never tried.
     """
     import matplotlib as mpl
+    import matplotlib.colors as mcolors
     import matplotlib.patches as mpatches
 
     grid = minimum_total_grid(table)
     alt, inc, min_total = grid["altitude_km"], grid["inclination_deg"], grid["min_total"]
-    cmap = mpl.colormaps["viridis_r"].with_extremes(bad=(0, 0, 0, 0))
+    totals_swept = np.asarray(design_columns(table, ["total"])["total"], dtype=float)
+    floor, ceiling = float(np.nanmin(totals_swept)), float(np.nanmax(totals_swept))
+    finite = np.unique(min_total[np.isfinite(min_total)])
+    # one colour per total found (fewer satellites brighter, the report colour rule)
+    n = max(finite.size, 1)
+    positions = np.linspace(0.95, 0.15, n) if n > 1 else np.array([0.6])
+    cmap = mcolors.ListedColormap(mpl.colormaps["viridis"](positions)).with_extremes(
+        bad=(0, 0, 0, 0))
+    values = finite if finite.size else np.array([0.0])
+    edges = np.concatenate([[values[0] - 0.5], (values[:-1] + values[1:]) / 2,
+                            [values[-1] + 0.5]])
+    norm = mcolors.BoundaryNorm(edges, ncolors=n)
+    at_floor = np.isfinite(min_total) & (min_total <= floor)
     with style.report_style():
         own = ax is None
         if own:
             fig, ax = _new_figure()
         x_edges = np.arange(inc.size + 1) - 0.5
         y_edges = np.arange(alt.size + 1) - 0.5
-        finite = min_total[np.isfinite(min_total)]
-        vmin, vmax = (finite.min(), finite.max()) if finite.size else (0.0, 1.0)
-        if vmin == vmax:
-            vmin, vmax = vmin - 0.5, vmax + 0.5
         mesh = ax.pcolormesh(x_edges, y_edges, np.ma.masked_invalid(min_total), cmap=cmap,
-                             vmin=vmin, vmax=vmax, edgecolors="white", linewidth=1.0)
+                             norm=norm, edgecolors="white", linewidth=1.0)
         for (row, col), value in np.ndenumerate(min_total):
             if np.isfinite(value):
                 shade = mesh.cmap(mesh.norm(value))
                 dark = style.luminance(shade) < 0.35
-                ax.text(col, row, f"{value:.0f}", ha="center", va="center", fontsize=8,
+                text = f"\u2264{value:.0f}" if at_floor[row, col] else f"{value:.0f}"
+                ax.text(col, row, text, ha="center", va="center", fontsize=8,
                         color="white" if dark else "black")
             elif grid["evaluated"][row, col]:
                 ax.add_patch(mpatches.Rectangle((col - 0.5, row - 0.5), 1, 1, facecolor="0.85",
                                                 hatch="///", edgecolor="0.55", linewidth=0))
-                ax.text(col, row, "none", ha="center", va="center", fontsize=7, color="0.25")
+                ax.text(col, row, f"none\n\u2264{ceiling:.0f}", ha="center", va="center",
+                        fontsize=7, color="0.25")
         ax.set_xticks(np.arange(inc.size), [f"{v:g}" for v in inc])
         ax.set_yticks(np.arange(alt.size), [f"{v:g}" for v in alt])
         ax.set_xlim(x_edges[0], x_edges[-1])
         ax.set_ylim(y_edges[0], y_edges[-1])
         ax.set_xlabel("inclination [deg]")
         ax.set_ylabel("altitude [km]")
-        cbar = ax.figure.colorbar(mesh, ax=ax, shrink=0.9, pad=0.03)
+        cbar = ax.figure.colorbar(mesh, ax=ax, shrink=0.9, pad=0.03, ticks=list(values))
+        cbar.set_ticks(list(values), labels=[f"{v:.0f}" for v in values])
+        cbar.ax.minorticks_off()
         cbar.set_label("smallest total meeting the requirement")
         if cbar.solids is not None:
             cbar.solids.set_rasterized(False)
+        handles = []
         if np.any(grid["evaluated"] & ~np.isfinite(min_total)):
-            ax.legend(handles=[mpatches.Patch(facecolor="0.85", hatch="///", edgecolor="0.55",
-                                              label="no design meets the requirement")],
-                      loc="upper left", bbox_to_anchor=(0.0, -0.12), frameon=False)
+            handles.append(mpatches.Patch(facecolor="0.85", hatch="///", edgecolor="0.55",
+                                          label=f"no design up to {ceiling:.0f} satellites "
+                                          "meets the requirement"))
+        notes = []
+        if at_floor.any():
+            # the answer is the smallest total swept: a smaller one was never tried
+            notes.append(f"\u2264{floor:.0f}: at the smallest total swept; the true minimum "
+                         "may be lower (sweep smaller totals)")
+        if handles or notes:
+            legend = ax.legend(handles=handles or [mpatches.Patch(visible=False)],
+                               labels=[h.get_label() for h in handles] or [""],
+                               loc="upper left", bbox_to_anchor=(0.0, -0.12), frameon=False,
+                               title="\n".join(notes) or None, alignment="left",
+                               title_fontsize=7.5, fontsize=7.5)
+            legend.set_gid("covergrid-bound-note" if notes else "covergrid-key")
         ax.set_title(title or "Smallest constellation meeting the requirement")
         if own:
             style.add_caption(ax.figure, caption)
@@ -406,6 +474,7 @@ def plot_pareto_front(table, metric: str, *, better: str | None = None,
         ax.set_xlabel("total satellites")
         ax.set_ylabel(label)
         ax.grid(True, linewidth=0.3, color="0.85")
+        total_ticks(ax, total)
         ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), frameon=False)
         ax.set_title(title or "Size against achieved performance")
         if own:
@@ -416,7 +485,7 @@ def plot_pareto_front(table, metric: str, *, better: str | None = None,
 def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = None,
                        by: str = "altitude_km", better: str | None = None,
                        units: str | None = None, requirement: float | None = None,
-                       long_name: str | None = None) -> list[Path]:
+                       long_name: str | None = None, study: str | None = None) -> list[Path]:
     """Write the three trade figures (PNG 200 dpi and vector PDF) into ``out_dir``.
 
     Files: ``trade_metric_vs_total``, ``trade_min_total`` (only when the table has ``meets``)
@@ -436,6 +505,8 @@ def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = Non
         As for :func:`plot_metric_vs_total`.
     long_name : str, optional
         Axis label of the metric (default: its registry long name, or the column name).
+    study : str, optional
+        The study's name, for the titles.
 
     Returns
     -------
@@ -461,6 +532,7 @@ def save_trade_figures(table, metric: str, out_dir, *, caption: str | None = Non
             fig, ax = _new_figure()
         try:
             draw(ax)
+            ax.set_title(style.figure_title(ax.get_title(), study))
             style.add_caption(fig, caption)
             written += style.save_png_and_pdf(fig, out, stem)
         finally:

@@ -152,7 +152,7 @@ class ResolvedStudy:
     nfold_max : int
         K of ``nfold_fraction``.
     refine_transitions : bool
-        Gap boundaries at limit-crossing times.
+        Continuous time (rises and sets at limit-crossing times between samples).
     requirement : Requirement or None
         The coverage requirement.
     band_width_deg : float

@@ -73,8 +73,9 @@ class Study(SectionModel):
     sweep: SweepSection | None = Field(None, description="A batch of designs (covergrid sweep).")
     sizing: SizingSection | None = Field(None, description="A sizing search (covergrid size).")
     refine_transitions: bool = Field(
-        True, description="Place gap starts and ends at the limit-crossing time between "
-        "samples (true), or at the sample (false: pure sampled values).")
+        True, description="Continuous time: every rise and set at its limit-crossing time "
+        "between samples, passes shorter than a step found (true), or pure sampled values, "
+        "sample and hold (false).")
 
     _study_text = field_validator("study", mode="before")(text_id)
 

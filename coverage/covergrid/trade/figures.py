@@ -48,4 +48,5 @@ def trade_figures(rows: list[dict], study: ResolvedStudy, folder: Path, *,
     by = ("altitude_km" if np.unique(table["altitude_km"]).size > 1
           or np.unique(table["inclination_deg"]).size == 1 else "inclination_deg")
     return save_trade_figures(table, metric, folder, caption=caption, by=by, better=better,
-                              units=units, requirement=threshold, long_name=long_name)
+                              units=units, requirement=threshold, long_name=long_name,
+                              study=study.name)

@@ -390,7 +390,8 @@ def _result_row(cell, best: dict | None, tried: int, per_cell: dict, pattern: st
 
 def run_sizing(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = None, *,
                scheduler: str | None = None, progress: bool = False,
-               figures: bool = True, force: bool = False) -> SizingResult:
+               figures: bool = True, force: bool = False, report: bool = True
+               ) -> SizingResult:
     """Run the sizing search and (given ``out_dir``) write its outputs and trade figures.
 
     Parameters
@@ -407,6 +408,8 @@ def run_sizing(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None =
         Draw the trade figures.
     force : bool
         Run even if the memory estimate exceeds the limit.
+    report : bool
+        Write ``report.html`` (with ``out_dir``).
 
     Returns
     -------
@@ -426,6 +429,10 @@ def run_sizing(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None =
         res = size_study(study, ResultStore(folder.target / "store"), scheduler=scheduler,
                          progress=progress)
         files = _write_sizing(study, res, folder.path, figures)
+        if report:
+            from covergrid.trade.sizing_report import write_sizing_report
+
+            files.append(write_sizing_report(study, res, files, folder.path))
         files = [folder.final(f) for f in files]
     res.out_dir, res.files = folder.target, files
     return res

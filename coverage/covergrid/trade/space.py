@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING
 
 from covergrid.compute.grid import GridSpec
 from covergrid.compute.metrics import METRICS
+from covergrid.compute.quantities import requirement_text
 from covergrid.errors import StudyError
 from covergrid.orbits.walker import walker_options
 from covergrid.study.build import as_resolved, trade_orbits
@@ -97,10 +98,7 @@ def designs_caption(study: ResolvedStudy, designs: Sequence[WalkerDesign], what:
             f"{study.duration_s / 3600.0:g} h at {study.step_s:g} s from {study.epoch_iso}.")
     r = study.requirement
     if r is not None:
-        sense = "at most" if r.at_most is not None else "at least"
-        k = f" (k = {r.k})" if r.k is not None else ""
-        units = METRICS[r.metric].units
-        value_text = f"{r.threshold:g}" + (f" {units}" if units not in ("", "1") else "")
-        text += (f" Requirement: {r.metric}{k} {sense} {value_text} over "
-                 f"{100 * r.area_fraction:g} % of the area.")
+        info = METRICS[r.metric]
+        text += " Requirement: " + requirement_text(
+            r.as_dict(), long_name=info.long_name, units=info.units, kind=info.kind) + "."
     return text

@@ -67,7 +67,7 @@ class SweepResult:
 
 def run_sweep(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = None, *,
               scheduler: str | None = None, progress: bool = False,
-              figures: bool = True, force: bool = False) -> SweepResult:
+              figures: bool = True, force: bool = False, report: bool = True) -> SweepResult:
     """Evaluate every design of the study's sweep block; write the table and figures.
 
     Parameters
@@ -85,6 +85,8 @@ def run_sweep(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = 
         Draw the trade figures.
     force : bool
         Run even if the memory estimate exceeds the limit.
+    report : bool
+        Write ``report.html`` (with ``out_dir``).
 
     Returns
     -------
@@ -112,8 +114,30 @@ def run_sweep(study: ResolvedStudy | Study, out_dir: str | os.PathLike | None = 
         if figures:
             files += trade_figures(rows, study, folder.path / "trades" / "sweep",
                                    caption=designs_caption(study, designs, "Sweep"))
+        if report:
+            files.append(_report(study, rows, files, folder.path))
         files = [folder.final(f) for f in files]
     return SweepResult(rows, computed, folder.target, files)
+
+
+def _report(study: ResolvedStudy, rows: list[dict], files: list[Path], folder: Path) -> Path:
+    """``report.html`` of a sweep: how many designs meet the requirement, the best designs,
+    every trade figure, the study and provenance."""
+    from covergrid.pipeline import report
+
+    verdict, notes = None, []
+    line = report.requirement_line(study)
+    if line is not None:
+        met = sum(1 for r in rows if r.get("meets") is True)
+        verdict = {"met": met > 0, "text": f"{met} of {len(rows)} designs meet the "
+                   f"requirement: {line}."}
+    else:
+        notes.append("The study states no requirement: the designs are compared on the "
+                     "area-weighted statistics in sweep.csv.")
+    table = report.design_table(rows, study, "Designs", csv_name="sweep.csv")
+    context = report.report_context(study, "sweep", files, folder, verdict=verdict,
+                                    tables=[table], notes=notes)
+    return report.write_report(folder, context)
 
 
 def _evaluate(study, designs, context, store, scheduler, progress) -> tuple[list[dict], int]:
