@@ -163,3 +163,18 @@ def test_bad_sun_synchronous_values_name_their_key(change, path, fragment):
         parse_study(SSO_STUDY.replace(*change))
     text = str(info.value)
     assert path in text and fragment in text, text
+
+
+# Circular sun-synchronous inclinations by altitude above the equatorial radius, as commonly
+# tabulated in mission-design texts (common practice; recalled from memory to 0.01 deg, so
+# the tolerance is half a unit of that rounding plus the spread between texts' J2 and Earth
+# radius, about 0.01 deg).
+RECALLED_SSO_DEG = [(500.0, 97.40), (600.0, 97.79), (700.0, 98.19), (800.0, 98.60),
+                    (1000.0, 99.48)]
+RECALLED_TOL_DEG = 0.015
+
+
+@pytest.mark.parametrize(("altitude_km", "incl_deg"), RECALLED_SSO_DEG)
+def test_recalled_sun_synchronous_inclinations_by_altitude(altitude_km, incl_deg):
+    got = math.degrees(sun_synchronous_inclination(WGS84_A_KM + altitude_km))
+    assert abs(got - incl_deg) < RECALLED_TOL_DEG
