@@ -20,7 +20,10 @@ $(STAMP): pyproject.toml
 	$(PY) -m pip install --quiet -e '.[dev]'
 	touch $(STAMP)
 
+# numba's cache checks only the source file of each compiled function, not the modules whose
+# helpers and constants it inlined: when any compiled source changes, start from an empty cache
 $(WARM): $(STAMP) $(JITTED)
+	find coverage/covergrid/compute coverage/covergrid/orbits -name '*.nb[ic]' -delete
 	$(PY) -m covergrid.pipeline.warmup
 	touch $(WARM)
 

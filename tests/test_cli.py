@@ -13,7 +13,7 @@ import xarray as xr
 
 from conftest import REPO, TINY_STUDY, compliance_report, write_study
 from covergrid import __version__, cli
-from covergrid.compute.metrics import METRICS
+from covergrid.compute.metrics import COVERAGE_METRICS as METRICS
 from covergrid.study import export_schema, load_study, resolve
 
 

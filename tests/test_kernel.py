@@ -16,7 +16,7 @@ import pytest
 from conftest import cell_centres, metrics_from_visibility, visibility
 from covergrid.compute.engine import compute_coverage
 from covergrid.compute.grid import GridSpec
-from covergrid.compute.metrics import METRICS
+from covergrid.compute.metrics import COVERAGE_METRICS as METRICS
 from covergrid.compute.sensor import Sensor
 from covergrid.compute.span import count_steps
 from covergrid.earth.time import parse_epoch

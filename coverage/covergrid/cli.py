@@ -16,6 +16,7 @@ traceback is shown unless ``--debug`` is given.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import json
 import math
 import signal
@@ -387,17 +388,19 @@ def _cmd_check(args: argparse.Namespace) -> int:
     est = estimate(resolved)
     blocks = [b for b in ("sweep", "sizing") if getattr(resolved, b) is not None]
     trades = {b: estimate_trade(resolved, b) for b in blocks}
+    derived = [dataclasses.asdict(d) for d in resolved.derived]
     if args.json:
-        print(json.dumps(json_safe({**est, **trades}), indent=2, allow_nan=False))
+        print(json.dumps(json_safe({**est, **trades, "derived": derived}), indent=2,
+                         allow_nan=False))
     else:
-        print(_estimate_text(study, est, trades))
+        print(_estimate_text(study, est, trades, derived))
     check_resources(resolved, est)
     for b in blocks:
         check_trade_resources(resolved, b)
     return EXIT_OK
 
 
-def _estimate_text(study, est: dict, trades: dict) -> str:
+def _estimate_text(study, est: dict, trades: dict, derived: list[dict]) -> str:
     from covergrid.pipeline.resources import format_bytes, format_seconds
 
     def gb(n):
@@ -413,8 +416,9 @@ def _estimate_text(study, est: dict, trades: dict) -> str:
         if g.walker is not None:
             w, t = g.walker, g.template
             alt = t.a_km - 6378.137
+            sso = " (sun-synchronous)" if t.sun_synchronous else ""
             groups.append(f"Walker {w.pattern} {w.total}/{w.planes}/{w.phasing} at "
-                          f"{alt:.0f} km, {t.inclination_deg:g} deg")
+                          f"{alt:.0f} km, {t.inclination_value_deg:.4g} deg{sso}")
         else:
             groups.append(f"{len(g.satellites)} listed satellite(s)")
     s = study.sensor
@@ -423,6 +427,10 @@ def _estimate_text(study, est: dict, trades: dict) -> str:
         limits.append(f"max off-nadir {s.max_off_nadir_deg:g} deg")
     if s.max_range_km is not None:
         limits.append(f"max range {s.max_range_km:g} km")
+    if s.min_sun_elevation_deg is not None:
+        limits.append(f"daylight only (Sun at least {s.min_sun_elevation_deg:g} deg high)")
+    if study.dop is not None:
+        limits.append(f"dilution of precision (PDOP threshold {study.dop.pdop_threshold:g})")
     lines = [
         f"study {study.study}: valid",
         f"  constellation   {est['satellites']} satellites: " + "; ".join(groups),
@@ -446,6 +454,9 @@ def _estimate_text(study, est: dict, trades: dict) -> str:
     ]
     if study.targets is not None:
         lines.append(f"  targets         {len(study.targets.entries):,} point targets")
+    for d in derived:
+        lines.append(f"  derived         {d['path']} = {d['value']:.4f} {d['unit']} "
+                     f"({d['how']})")
     if study.requirement is not None:
         from covergrid.compute.metrics import METRICS
         from covergrid.compute.quantities import requirement_text

@@ -9,8 +9,11 @@ W2  Walker delta 1200/40/1 at 53 deg, 600 km, min elevation 25 deg, 1 deg grid, 
     print the cost of continuous time (passes between samples found) as a ratio: target 1.5x.
 W3  12 satellites (3 planes, 98 deg, 700 km, max off-nadir 30 deg), 0.25 deg grid, 7 days at
     10 s. Target: peak RSS <= 1.5 GB; wall time reported.
+DOP Walker delta 24/6/1 at 55 deg, 20,200 km, min elevation 5 deg, 2 deg grid, 24 h at 60 s:
+    the run with the dilutions of precision against the plain coverage run of the same study,
+    measured side by side in one process. Target: ratio <= 3.
 
-Usage: python bench_coverage.py {w1,w2,w3} prints one JSON line.
+Usage: python bench_coverage.py {w1,w2,w3,dop} prints one JSON line.
 """
 
 from __future__ import annotations
@@ -28,7 +31,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from covergrid.compute.engine import compute_coverage  # noqa: E402
 from covergrid.compute.grid import GridSpec  # noqa: E402
-from covergrid.compute.metrics import METRICS  # noqa: E402
+from covergrid.compute.metrics import COVERAGE_METRICS as METRICS  # noqa: E402
 from covergrid.compute.sensor import Sensor  # noqa: E402
 from covergrid.compute.span import count_steps  # noqa: E402
 from covergrid.orbits.walker import walker_delta  # noqa: E402
@@ -109,6 +112,30 @@ def w3() -> dict:
             "mean_max_gap_h": float(ds.max_gap.weighted(ds.cell_area).mean()) / 3600}
 
 
+def dop() -> dict:
+    from covergrid.compute.dop_spec import DopSpec
+
+    el = walker_delta(24, 6, 1, a_km=RE + 20200.0, i_rad=math.radians(55.0))
+    grid, sensor, span, step = GridSpec(2.0), Sensor(5.0), 24 * 3600.0, 60.0
+
+    def plain():
+        return compute_coverage(el, EPOCH, span, step, grid, sensor)
+
+    def with_dop():
+        return compute_coverage(el, EPOCH, span, step, grid, sensor, dop=DopSpec(6.0))
+
+    _timed(with_dop)  # compile or load both from the cache first
+    _timed(plain)
+    t_plain, t_dop = math.inf, math.inf
+    for _ in range(3):  # alternate, so that load from other work affects both alike
+        t_plain = min(t_plain, _timed(plain)[0])
+        t, ds = _timed(with_dop)
+        t_dop = min(t_dop, t)
+    return {"bench": "DOP", "plain_s": t_plain, "dop_s": t_dop, "ratio": t_dop / t_plain,
+            "target": "ratio <= 3", "visits": int(ds.visits),
+            "mean_p95_pdop": float(ds.p95_pdop.weighted(ds.cell_area).mean())}
+
+
 if __name__ == "__main__":
     which = sys.argv[1] if len(sys.argv) > 1 else "w1"
-    print(json.dumps({"w1": w1, "w2": w2, "w3": w3}[which]()))
+    print(json.dumps({"w1": w1, "w2": w2, "w3": w3, "dop": dop}[which]()))

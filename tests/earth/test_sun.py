@@ -5,6 +5,7 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
+import pytest
 from astropy import units as u
 from astropy.coordinates import AltAz, EarthLocation, PrecessedGeocentric, get_sun
 from astropy.time import Time
@@ -129,3 +130,71 @@ def test_solar_elevation_matches_astropy_altaz():
     ref = get_sun(t).transform_to(AltAz(location=site, obstime=t, pressure=0.0 * u.hPa))
     el = solar_elevation_rad(np.deg2rad(lat_deg), np.deg2rad(lon_deg), epoch, offsets)
     assert np.max(np.abs(np.rad2deg(el) - ref.alt.deg)) < ALTAZ_MODEL_DEG
+
+
+# --- the mean Sun and local times of the ascending node ---------------------------------
+# The Almanac's mean longitude L = 280.460 deg + 0.9856474 deg/day n is printed to 5e-4 deg,
+# its rate differs from the IAU 1982 sidereal polynomial's by 3.4e-8 deg/day (6e-4 deg over
+# 50 years either side of J2000), and the quadratic term of the sidereal polynomial adds
+# 2e-4 deg by 1950 and 2050: 0.0013 deg together; written 0.002 deg.
+MEAN_LONGITUDE_DEG = 0.002
+# The equation of time is printed to 0.1 min in the table below (from memory); astropy's
+# true Sun against our mean Sun also carries nutation in right ascension (<= 1.1 s of time)
+# and UT1 = UTC: 0.1 min + 0.02 min, written 0.15 min.
+EQUATION_OF_TIME_MIN = 0.15
+
+
+def test_mean_sun_follows_the_almanac_mean_longitude():
+    # Astronomical Almanac, Section C, low-precision formulas: the Sun's mean longitude
+    # L = 280.460 deg + 0.9856474 deg n (n days from J2000), 1950-2050. The mean Sun of
+    # mean solar time moves along the equator with right ascension L.
+    from covergrid.earth.sun import mean_sun_right_ascension_rad
+    from covergrid.earth.time import julian_date
+
+    epoch = parse_epoch("1950-01-01T00:00:00Z")
+    offsets = np.linspace(0.0, 100.0 * 365.25 * 86400.0, 2001)
+    whole, frac = julian_date(epoch, offsets)
+    n = whole - 2451545.0 + frac
+    mean_lon_deg = np.mod(280.460 + 0.9856474 * n, 360.0)
+    ours_deg = np.rad2deg(mean_sun_right_ascension_rad(epoch, offsets))
+    diff = (ours_deg - mean_lon_deg + 180.0) % 360.0 - 180.0
+    assert np.max(np.abs(diff)) < MEAN_LONGITUDE_DEG
+
+
+@pytest.mark.parametrize(("date", "eot_min"), [
+    # Equation of time (apparent minus mean solar time), common practice, from memory: its
+    # extremes of about -14.2 min (11-12 February), +3.7 min (14 May), -6.5 min (26 July)
+    # and +16.4 min (3 November) move by well under 0.1 min from year to year.
+    ("2031-02-11T12:00:00", -14.2), ("2031-05-14T12:00:00", 3.7),
+    ("2031-07-26T12:00:00", -6.5), ("2031-11-03T12:00:00", 16.4),
+])
+def test_mean_sun_against_astropy_true_sun_is_the_equation_of_time(date, eot_min):
+    # True Sun: astropy get_sun in the mean equator and equinox of date (see
+    # test_sun_matches_astropy_mean_of_date). Apparent solar time runs ahead of mean time by
+    # (RA of the mean Sun - RA of the true Sun) / 15 deg/h.
+    from covergrid.earth.sun import mean_sun_right_ascension_rad
+
+    t = Time(date, scale="utc")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # ERFA "dubious year" past the leap-second table
+        true_ra = get_sun(t).transform_to(PrecessedGeocentric(equinox=t, obstime=t)).ra.rad
+    mean_ra = float(mean_sun_right_ascension_rad(parse_epoch(date + "Z")))
+    eot = np.rad2deg((mean_ra - true_ra + np.pi) % (2 * np.pi) - np.pi) * 4.0  # min of time
+    assert eot == pytest.approx(eot_min, abs=EQUATION_OF_TIME_MIN)
+
+
+def test_raan_for_local_time_puts_the_node_at_that_mean_solar_time():
+    # Local mean solar time at a meridian = UT + east longitude / (15 deg/h) (common
+    # practice; UT1 taken as UTC). The node of RAAN Omega lies at Earth-fixed longitude
+    # Omega - GMST at the epoch.
+    from covergrid.earth.sun import raan_for_local_time_rad
+
+    for text in ("2031-03-20T00:00:00Z", "2027-08-01T17:45:30Z", "1999-12-31T23:59:00Z"):
+        epoch = parse_epoch(text)
+        ut_h = float((epoch - epoch.astype("datetime64[D]")) / np.timedelta64(1, "s")) / 3600.0
+        ltan = np.array([0.0, 6.0, 10.5, 13.75, 22.0])
+        raan = raan_for_local_time_rad(ltan, epoch)
+        lon = raan - gmst_rad(epoch)
+        lmst = ut_h + np.rad2deg(lon) / 15.0
+        np.testing.assert_allclose((lmst - ltan + 12.0) % 24.0 - 12.0, 0.0, atol=1e-9)
+    assert raan_for_local_time_rad(10.5, "2031-03-20T00:00:00Z").shape == ()

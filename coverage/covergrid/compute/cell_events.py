@@ -14,6 +14,8 @@ from __future__ import annotations
 
 from covergrid.compute.jit import kernel_function, kernel_helper
 from covergrid.compute.kernel_state import (
+    DAY,
+    DAY_EVENT,
     GAP_COUNT,
     GAP_START,
     HIST0,
@@ -21,6 +23,7 @@ from covergrid.compute.kernel_state import (
     MAX_N,
     MIN_N,
     N_CUR,
+    N_GEO,
     PASS_COUNT,
     SCRATCH_EVENTS,
     SUM_GAP,
@@ -62,7 +65,15 @@ def _record_gap(a, c, t_end):
 
 @kernel_helper
 def apply_event(a, c, t, delta, kmax):
-    """Change the in-view count of cell c by delta (+1 a pass starts, -1 one ends) at t."""
+    """Change the in-view count of cell c by delta (+1 a pass starts, -1 one ends) at t; or
+    open (+DAY_EVENT, sunrise) or close (-DAY_EVENT, sunset) its daylight gate
+    (:mod:`covergrid.compute.daylight`): at night the satellites in view count as none."""
+    if delta == DAY_EVENT or delta == -DAY_EVENT:
+        _daylight(a, c, t, delta > 0.0, kmax)
+        return
+    a[c, N_GEO] += delta
+    if a[c, DAY] == 0.0:
+        return
     _close_level(a, c, t, kmax)
     n_old = a[c, N_CUR]
     a[c, N_CUR] = n_old + delta
@@ -72,6 +83,26 @@ def apply_event(a, c, t, delta, kmax):
             _record_gap(a, c, t)
     elif n_old == 1.0:
         a[c, GAP_START] = t
+
+
+@kernel_helper
+def _daylight(a, c, t, day, kmax):
+    """Open or close cell c's daylight gate at t: at sunrise the satellites in view start
+    passes (ending a gap if any is in view), at sunset theirs end (starting one)."""
+    if (a[c, DAY] != 0.0) == day:
+        return
+    _close_level(a, c, t, kmax)
+    a[c, DAY] = 1.0 if day else 0.0
+    n_geo = a[c, N_GEO]
+    if day:
+        a[c, N_CUR] = n_geo
+        if n_geo > 0.0:
+            a[c, PASS_COUNT] += n_geo
+            _record_gap(a, c, t)
+    else:
+        if a[c, N_CUR] > 0.0:
+            a[c, GAP_START] = t
+        a[c, N_CUR] = 0.0
 
 
 @kernel_helper
@@ -97,9 +128,21 @@ def push_event(heads, ev, c, t, delta):
 
 
 @kernel_helper
+def _rank(d):
+    """Order of events at one time: sunset, arrivals, departures, sunrise (so that a
+    satellite that rises at sunset, or sets at sunrise, is never counted in daylight)."""
+    if d == -DAY_EVENT:
+        return 0.0
+    if d == DAY_EVENT:
+        return 3.0
+    return 1.5 - 0.5 * d
+
+
+@kernel_helper
 def _before(t1, d1, t2, d2):
-    """Event order: by time, and at equal times arrivals (+1) first."""
-    return t1 < t2 or (t1 == t2 and d1 > d2)
+    """Event order: by time, and at equal times by :func:`_rank` (arrivals before
+    departures)."""
+    return t1 < t2 or (t1 == t2 and _rank(d1) < _rank(d2))
 
 
 @kernel_function

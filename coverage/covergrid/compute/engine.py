@@ -20,9 +20,18 @@ import numpy as np
 import xarray as xr
 
 from covergrid import __version__
+from covergrid.compute import dop as dop_module
 from covergrid.compute import kernel, kernel_state
+from covergrid.compute.dop_spec import DopSpec
 from covergrid.compute.grid import Grid, GridSpec, row_bands
-from covergrid.compute.metrics import INTEGER_METRICS, METRICS, MODEL_LIMITS, finalise
+from covergrid.compute.metrics import (
+    COVERAGE_METRICS,
+    DOP_METRICS,
+    INTEGER_METRICS,
+    METRICS,
+    MODEL_LIMITS,
+    finalise,
+)
 from covergrid.compute.sensor import Sensor
 from covergrid.compute.span import count_steps, position_block_length
 from covergrid.earth.time import epoch_to_iso, gmst_rad, parse_epoch
@@ -33,19 +42,23 @@ __all__ = ["PLANAR_METRICS", "band_task", "compute_coverage"]
 
 def band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
               grid_spec: GridSpec, rows: tuple[int, int], sensor: Sensor,
-              nfold_max: int, refine: bool = True) -> np.ndarray:
+              nfold_max: int, refine: bool = True, dop: DopSpec | None = None,
+              epoch: np.datetime64 | None = None) -> np.ndarray:
     """Metrics of the cells of rows [r0, r1): propagate block by block, stream the kernel.
 
     Returns one float64 stack: the metrics other than ``nfold_fraction`` (order
     :data:`PLANAR_METRICS`), then the K fold planes, then a plane holding the visit count at
-    [0, 0]. If the kernel's per-sample event queue overflowed
+    [0, 0], then with ``dop`` the DOP metrics (order
+    :data:`covergrid.compute.metrics.DOP_METRICS`). If the kernel's per-sample event queue
+    overflowed
     (:func:`covergrid.compute.kernel_state.queue_overflow`), the band is computed again with a
-    queue four times longer, so no event is lost.
+    queue four times longer, so no event is lost. ``epoch`` (the span's start, UTC) places
+    the Sun for a sensor with a daylight threshold.
     """
     queue_per_cell = kernel_state.QUEUE_PER_CELL
     while True:
-        state = _run_band(elements, theta0_rad, step_s, n_steps, grid_spec, rows, sensor,
-                          nfold_max, refine, queue_per_cell)
+        state, dop_state = _run_band(elements, theta0_rad, step_s, n_steps, grid_spec, rows,
+                                     sensor, nfold_max, refine, queue_per_cell, dop, epoch)
         if kernel_state.queue_overflow(state) == 0:
             break
         queue_per_cell *= 4
@@ -53,20 +66,29 @@ def band_task(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     n_rows, n_lon = r1 - r0, grid_spec.n_lon
     res = finalise(kernel_state.accumulators(state), n_steps, step_s)
     # one float64 stack per band: (metrics except nfold, rows, lon) + nfold (K, rows, lon) +
-    # the visit count, so that the graph has one task per band and no per-metric getitems
-    planes = [res[m].reshape(n_rows, n_lon) for m in PLANAR_METRICS]
-    out = np.empty((len(PLANAR_METRICS) + nfold_max + 1, n_rows, n_lon))
-    out[: len(PLANAR_METRICS)] = planes
-    out[len(PLANAR_METRICS): -1] = res["nfold_fraction"].reshape(nfold_max, n_rows, n_lon)
-    out[-1] = 0.0
-    out[-1, 0, 0] = float(state["visits"][0])
+    # the visit count (+ the DOP metrics), so that the graph has one task per band and no
+    # per-metric getitems
+    n_planar = len(PLANAR_METRICS)
+    n_dop = len(DOP_METRICS) if dop is not None else 0
+    out = np.empty((n_planar + nfold_max + 1 + n_dop, n_rows, n_lon))
+    out[:n_planar] = [res[m].reshape(n_rows, n_lon) for m in PLANAR_METRICS]
+    out[n_planar: n_planar + nfold_max] = res["nfold_fraction"].reshape(nfold_max, n_rows,
+                                                                         n_lon)
+    visits = n_planar + nfold_max
+    out[visits] = 0.0
+    out[visits, 0, 0] = float(state["visits"][0])
+    if dop_state is not None:
+        values = dop_module.dop_metrics(dop_state, n_steps)
+        out[visits + 1:] = [values[m].reshape(n_rows, n_lon) for m in DOP_METRICS]
     return out
 
 
 def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
               grid_spec: GridSpec, rows: tuple[int, int], sensor: Sensor, nfold_max: int,
-              refine: bool, queue_per_cell: int) -> dict[str, np.ndarray]:
-    """The kernel's closed-out state of one band (see :func:`band_task`)."""
+              refine: bool, queue_per_cell: int, dop: DopSpec | None,
+              epoch: np.datetime64 | None = None
+              ) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray] | None]:
+    """The kernel's closed-out state of one band and its DOP state (see :func:`band_task`)."""
     grid = Grid(grid_spec)
     r0, r1 = rows
     geo = {k: np.ascontiguousarray(v[r0:r1]) for k, v in grid.row_geometry.items()}
@@ -77,7 +99,9 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     mask = grid.cell_mask
     if mask is not None:
         state["heads"][~mask[r0:r1].ravel()] = -1.0  # outside the region: never computed
+    dop_state = None if dop is None else dop_module.new_dop_state(n_rows * n_lon, n_sat)
     el_min, eta_max, range_max = sensor.kernel_args()
+    sun_min = math.radians(sensor.min_sun_elevation_deg or 0.0)
     # continuous time needs the end of the span as a sample too (the last step's crossings)
     n_samples = n_steps + 1 if refine else n_steps
     block = position_block_length(n_sat, n_samples, with_velocity=refine)
@@ -100,9 +124,30 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
         else:
             pos, vel = j2.propagate_to_ecef(elements, t, theta0_rad, out=out), None
         kernel.run_band(state, pos, i0, geo, lon0, dlon, n_circle, el_min, eta_max, range_max,
-                        refine, vel, step_s, n_win=n_lon, cap=cap)
+                        refine, vel, step_s, n_win=n_lon, cap=cap,
+                        sun_km=_sun_ecef_km(sensor, epoch, t), min_sun_elevation_rad=sun_min)
+        if dop_state is not None and dop is not None and i0 < n_steps:
+            # DOP is sampled (sample and hold): the span's end sample is not one of its own.
+            # It runs over the window's n_lon columns; cells outside a region are computed
+            # too and masked with the other metrics afterwards
+            dop_module.run_dop_band(dop_state, pos[:, : n_steps - i0], geo, lon0, dlon, n_lon,
+                                    el_min, eta_max, range_max, dop, n_circle=n_circle)
     kernel.close_band(state, n_steps)
-    return state
+    return state, dop_state
+
+
+def _sun_ecef_km(sensor: Sensor, epoch: np.datetime64 | None, t_s: np.ndarray
+                 ) -> np.ndarray | None:
+    """The Sun's Earth-fixed positions at the samples t_s [km] when the sensor has a daylight
+    threshold (Astronomical Almanac low-precision Sun, IAU 1982 sidereal angle), else None."""
+    if sensor.min_sun_elevation_deg is None:
+        return None
+    if epoch is None:
+        raise ValueError("a daylight threshold needs the epoch")
+    from covergrid.earth.frames import eci_to_ecef
+    from covergrid.earth.sun import sun_position_eci_km
+
+    return eci_to_ecef(sun_position_eci_km(epoch, t_s), gmst_rad(epoch, t_s))
 
 
 def _front(buf: np.ndarray, nb: int) -> np.ndarray:
@@ -112,7 +157,7 @@ def _front(buf: np.ndarray, nb: int) -> np.ndarray:
 
 
 #: Metrics on (lat, lon), in the order of a band task's output stack.
-PLANAR_METRICS = tuple(m for m in METRICS if m != "nfold_fraction")
+PLANAR_METRICS = tuple(m for m in COVERAGE_METRICS if m != "nfold_fraction")
 
 
 def _grid_dataset(grid: Grid) -> xr.Dataset:
@@ -151,6 +196,7 @@ def compute_coverage(
     attrs: Mapping[str, Any] | None = None,
     compute: bool = True,
     refine_transitions: bool = True,
+    dop: DopSpec | None = None,
 ) -> xr.Dataset:
     """Per-cell coverage metrics of a constellation over a grid.
 
@@ -186,6 +232,9 @@ def compute_coverage(
         samples included, and every metric an integral over those times; the span's end is
         then a sample too. False gives the pure sampled values (sample and hold). See
         :mod:`covergrid.compute.metrics`.
+    dop : DopSpec, optional
+        Also compute the dilution-of-precision metrics
+        (:data:`covergrid.compute.metrics.DOP_METRICS`, :mod:`covergrid.compute.dop`).
 
     Returns
     -------
@@ -209,10 +258,11 @@ def compute_coverage(
     bands = row_bands(grid.n_lat, chunk_rows)
     n_lon = grid.n_lon
 
-    depth = len(PLANAR_METRICS) + nfold_max + 1
+    depth = len(PLANAR_METRICS) + nfold_max + 1 + (len(DOP_METRICS) if dop is not None else 0)
     tasks = [dask.delayed(band_task, pure=True)(elements, theta0, float(step_s), n_steps, grid,
                                                  b, sensor, int(nfold_max),
-                                                 bool(refine_transitions)) for b in bands]
+                                                 bool(refine_transitions), dop, epoch)
+             for b in bands]
     if compute:
         # run the band tasks and assemble with numpy: no dask-array graph to optimise
         stack = np.concatenate(_compute_tasks(tasks, scheduler, progress), axis=1)
@@ -227,7 +277,11 @@ def compute_coverage(
         arr = stack[idx]
         data[name] = arr.astype(np.int32) if name in INTEGER_METRICS else arr
     data["nfold_fraction"] = stack[len(PLANAR_METRICS): len(PLANAR_METRICS) + nfold_max]
-    visits = stack[-1].sum().astype(np.int64)
+    at_visits = len(PLANAR_METRICS) + nfold_max
+    visits = stack[at_visits].sum().astype(np.int64)
+    if dop is not None:
+        for idx, name in enumerate(DOP_METRICS):
+            data[name] = stack[at_visits + 1 + idx]
 
     ds = _grid_dataset(g)
     ds = ds.assign_coords(k=xr.Variable("k", np.arange(1, nfold_max + 1, dtype=np.int32), {
@@ -235,8 +289,10 @@ def compute_coverage(
     for name, arr in data.items():
         info = METRICS[name]
         dims = ("k", "lat", "lon") if name == "nfold_fraction" else ("lat", "lon")
-        a = info.attrs()
+        a: dict[str, Any] = dict(info.attrs())
         a["cell_methods"] = "area: point"
+        if name == "pdop_fraction" and dop is not None:
+            a["threshold"] = float(dop.pdop_threshold)
         ds[name] = (dims, arr, a)
     mask = g.cell_mask
     if mask is not None:
@@ -277,6 +333,8 @@ def compute_coverage(
                                                             or grid.region.surface),
         "covergrid_refine_transitions": int(bool(refine_transitions)),
     })
+    if dop is not None:
+        ds.attrs["covergrid_pdop_threshold"] = float(dop.pdop_threshold)
     if attrs:
         ds.attrs.update(dict(attrs))
     return ds

@@ -44,6 +44,7 @@ import numpy as np
 
 from covergrid.compute.cell_events import apply_events, close_cells
 from covergrid.compute.crossings import cubic_range
+from covergrid.compute.daylight import daylight_events, daylight_start
 from covergrid.compute.footprint import (
     NO_LIMIT_KM,
     binding,
@@ -65,7 +66,7 @@ _EDGE_PAD_RAD = 1e-4
 def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_lon, lon0, dlon,
             n_lon, n_win, cap,
             el_min_rad, eta_max_rad, range_max_km, refine, step_s, acc, heads, events,
-            rows_prev, prev_rows, bound_cache, prev_pos, visits):
+            rows_prev, prev_rows, bound_cache, prev_pos, visits, sun_km, prev_sun, sin_h0):
     """Advance one latitude band's streaming state over a block of samples.
 
     For each sample, each satellite's rows are visited once: the row's threshold and
@@ -107,6 +108,13 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
         State from :func:`covergrid.compute.kernel_state.new_state`, updated in place.
     visits : ndarray, (1,)
         Running count of satellite-sample-cell visibilities (for benchmarks), in place.
+    sun_km : ndarray, (n_block, 3) or (0, 3)
+        The Sun's Earth-fixed position at the block's samples [km], with the daylight
+        constraint (:mod:`covergrid.compute.daylight`); empty without it.
+    prev_sun : ndarray, (3,)
+        The Sun at the previous sample (state, updated in place).
+    sin_h0 : float
+        Sine of the least solar elevation of daylight.
     """
     n_sat = pos_km.shape[0]
     n_block = pos_km.shape[1]
@@ -129,10 +137,22 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
         if heads[c] < 0.0:
             masked = True
             break
+    daylight = sun_km.shape[0] > 0
     for b in range(n_block):
         i = i0 + b
         timed = refine and i > 0
         t_sample = float(i)
+        if daylight:
+            if i == 0:
+                daylight_start(acc, heads, sun_km[b, 0], sun_km[b, 1], sun_km[b, 2], rho, zr,
+                               sin_lat, cos_lat, cos_lon, sin_lon, n_win, masked, sin_h0)
+                prev_sun[0] = sun_km[b, 0]
+                prev_sun[1] = sun_km[b, 1]
+                prev_sun[2] = sun_km[b, 2]
+            else:
+                daylight_events(acc, heads, events, prev_sun, sun_km[b, 0], sun_km[b, 1],
+                                sun_km[b, 2], rho, zr, sin_lat, cos_lat, cos_lon, sin_lon, lon0,
+                                dlon, n_lon, n_win, masked, sin_h0, refine, t_sample, kmax)
         for s in range(n_sat):
             x = pos_km[s, b, 0]
             y = pos_km[s, b, 1]
@@ -302,14 +322,17 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
              el_min_rad: float, eta_max_rad: float, range_max_km: float,
              refine: bool = True, vel_km_s: np.ndarray | None = None,
              step_s: float = 1.0, n_win: int | None = None,
-             cap: tuple[float, float, float, float] | None = None) -> None:
+             cap: tuple[float, float, float, float] | None = None,
+             sun_km: np.ndarray | None = None, min_sun_elevation_rad: float = 0.0) -> None:
     """Python entry point to :func:`advance` with the state held in a dict.
 
     With ``refine``, ``vel_km_s`` (the positions' time derivatives, same shape) and the
     sample spacing ``step_s`` [s] are required. ``n_lon`` columns from ``lon0_rad`` go
     round the circle; the first ``n_win`` of them (default all) are the band's cells.
     ``cap`` (centre unit vector, radius [rad]) holds every cell of the band (default: the
-    whole sphere); see :func:`advance`.
+    whole sphere); see :func:`advance`. ``sun_km`` (n_block, 3), the Sun's Earth-fixed
+    positions at the block's samples [km], applies the daylight constraint with the least
+    solar elevation ``min_sun_elevation_rad``.
     """
     st = state
     pos = np.ascontiguousarray(pos_km, dtype=np.float64)
@@ -327,7 +350,9 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
             float(el_min_rad),
             float(eta_max_rad), float(range_max_km), bool(refine), float(step_s), st["acc"],
             st["heads"], st["events"], st["rows_prev"], st["prev_rows"], st["bound_cache"],
-            st["prev_pos"], st["visits"])
+            st["prev_pos"], st["visits"],
+            np.zeros((0, 3)) if sun_km is None else np.ascontiguousarray(sun_km, np.float64),
+            st["prev_sun"], math.sin(min_sun_elevation_rad))
 
 
 def close_band(state: dict[str, np.ndarray], t_end: float) -> None:

@@ -26,11 +26,16 @@ QUEUE_PER_CELL = 4
 # numbers held exactly in float64 (below 2**53); times are in (fractional) samples:
 # in-view count now, time of its last change, start of the current gap, time integral of
 # the count, least and greatest count held for a positive time, gaps, passes, sum of gap
-# lengths and of their squares, and the longest gap.
+# lengths and of their squares, and the longest gap; then the daylight gate
+# (covergrid.compute.daylight): satellites in view whatever the daylight (N_CUR is this
+# count in daylight, 0 at night), the gate (1 in daylight or without the constraint), and
+# the gate as of the last queued sunrise or sunset.
 (N_CUR, T_LAST, GAP_START, SUM_N, MIN_N, MAX_N, GAP_COUNT, PASS_COUNT, SUM_GAP, SUM_GAP2,
- MAX_GAP) = range(11)
+ MAX_GAP, N_GEO, DAY, DAY_QUEUED) = range(14)
 #: first column of the level histogram (time spent at 0, 1, .., K-1 and >= K in view)
-HIST0 = 11
+HIST0 = 14
+#: The change of an event that is a sunrise (+) or a sunset (-), not a satellite's rise or set.
+DAY_EVENT = 2.0
 _FIELDS = {"sum_n": SUM_N, "min_n": MIN_N, "max_n": MAX_N, "gap_count": GAP_COUNT,
            "sum_gap": SUM_GAP, "sum_gap2": SUM_GAP2, "max_gap": MAX_GAP,
            "pass_count": PASS_COUNT}
@@ -86,6 +91,8 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int,
     cap = queue_per_cell * n_cells + QUEUE_SLACK
     acc = np.zeros((n_cells, HIST0 + nfold_max + 1))
     acc[:, MIN_N] = 2.0**40
+    acc[:, DAY] = 1.0
+    acc[:, DAY_QUEUED] = 1.0
     return {
         "acc": acc,
         "heads": np.zeros(n_cells),
@@ -99,6 +106,8 @@ def new_state(n_cells: int, nfold_max: int, n_sat: int, n_rows: int,
         "bound_cache": np.full((n_sat, 3), -1.0),
         # per satellite: Earth-fixed position [km] and velocity [km/s] at the previous sample
         "prev_pos": np.zeros((n_sat, 6)),
+        # the Sun's Earth-fixed position at the previous sample [km] (daylight constraint)
+        "prev_sun": np.zeros(3),
         "visits": np.zeros(1, np.int64),
     }
 

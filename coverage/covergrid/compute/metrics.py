@@ -86,7 +86,11 @@ class MetricInfo:
     better : str
         ``"lower"`` or ``"higher"``: which direction meets a requirement more easily.
     kind : str
-        ``"fraction"``, ``"duration"``, ``"count"`` or ``"level"`` (number of satellites).
+        ``"fraction"``, ``"duration"``, ``"count"``, ``"level"`` (number of satellites) or
+        ``"dop"`` (a dilution of precision).
+    group : str
+        ``"coverage"`` (the coverage kernel's, always computed) or ``"dop"`` (computed with a
+        study's ``dop:`` section, :mod:`covergrid.compute.dop`).
     """
 
     name: str
@@ -97,6 +101,7 @@ class MetricInfo:
     better: str
     kind: str
     cell_methods: str = "time: point"
+    group: str = "coverage"
 
     def attrs(self) -> dict[str, str]:
         """CF attributes of the variable."""
@@ -156,6 +161,40 @@ METRICS: dict[str, MetricInfo] = {
            "common practice", "higher", "fraction"),
     )
 }
+
+#: The dilutions of precision (geometric, position, horizontal, vertical, time).
+DOP_KINDS = ("gdop", "pdop", "hdop", "vdop", "tdop")
+_DOP_NAMES = {"gdop": "GDOP", "pdop": "PDOP", "hdop": "HDOP", "vdop": "VDOP", "tdop": "TDOP"}
+DOP_SOURCE = ("Kaplan and Hegarty, Understanding GPS: Principles and Applications, 2nd ed., "
+              "sec. 7.3.1 (from memory)")
+for _k in DOP_KINDS:
+    _n = _DOP_NAMES[_k]
+    for _m in (
+        _M(f"max_{_k}", "1", f"maximum {_n}",
+           f"Largest {_n} over the sampled span from the satellites in view (infinite when "
+           "fewer than four are in view or their geometry is singular at any sample).",
+           DOP_SOURCE, "lower", "dop", group="dop"),
+        _M(f"mean_{_k}", "1", f"time-mean {_n}",
+           f"Mean of {_n} over the samples where it is finite (NaN if none).",
+           DOP_SOURCE, "lower", "dop", group="dop"),
+        _M(f"p95_{_k}", "1", f"95th percentile of {_n} over time",
+           f"{_n} not exceeded at 95 % of the samples (outages count as infinite), from a "
+           "per-cell histogram: never below the sampled value, at most 1.6 % above it.",
+           DOP_SOURCE, "lower", "dop", group="dop"),
+    ):
+        METRICS[_m.name] = _m
+METRICS["pdop_fraction"] = _M(
+    "pdop_fraction", "1", "fraction of time with PDOP at or below the threshold",
+    "Fraction of the sampled span with at least four satellites in view and PDOP at or below "
+    "the study's dop.pdop_threshold.", "common practice", "higher", "fraction", group="dop")
+METRICS["no_fix_fraction"] = _M(
+    "no_fix_fraction", "1", "fraction of time with fewer than four satellites in view",
+    "Fraction of the sampled span with fewer than four satellites in view (no position fix).",
+    "common practice", "lower", "fraction", group="dop")
+#: Metrics computed with a ``dop:`` section, in the order of the engine's output stack.
+DOP_METRICS = tuple(m for m in METRICS if METRICS[m].group == "dop")
+#: Metrics the coverage kernel always computes.
+COVERAGE_METRICS = tuple(m for m in METRICS if METRICS[m].group == "coverage")
 
 #: Metrics that are integers per cell.
 INTEGER_METRICS = frozenset({"gap_count", "pass_count", "min_in_view", "max_in_view"})

@@ -28,6 +28,10 @@ of columns is cut to them before its cells are visited, so columns outside the w
 nothing. A cell outside the grid's region has its queue head ``heads[c]`` set to -1 and is
 skipped (one read, only when the band has such cells: ``masked``); it is never solved or
 queued.
+
+The cell helpers inlined here (:mod:`covergrid.compute.cell_events`) read the per-cell state
+by the column constants of :mod:`covergrid.compute.kernel_state`; numba's on-disk cache does
+not notice a change there, so `make` empties the cache whenever a compiled source changes.
 """
 
 from __future__ import annotations

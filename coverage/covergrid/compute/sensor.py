@@ -29,11 +29,16 @@ class Sensor:
         geocentric nadir [deg], in (0, 90); None: no limit.
     max_range_km : float or None
         Maximum slant range [km]; None: no limit.
+    min_sun_elevation_deg : float or None
+        Daylight: the cell counts as seen only while the Sun's centre is at least this high
+        above its horizon [deg], in (-90, 90) (:mod:`covergrid.compute.daylight`); None: day
+        and night alike.
     """
 
     min_elevation_deg: float = 10.0
     max_off_nadir_deg: float | None = None
     max_range_km: float | None = None
+    min_sun_elevation_deg: float | None = None
 
     def __post_init__(self) -> None:
         e = self.min_elevation_deg
@@ -48,6 +53,10 @@ class Sensor:
         if r is not None and not (math.isfinite(r) and r > 0.0):
             raise CovergridError(f"{r!r} km is not allowed; use a positive range or leave it out",
                                  "sensor.max_range_km")
+        h = self.min_sun_elevation_deg
+        if h is not None and not (math.isfinite(h) and -90.0 < h < 90.0):
+            raise CovergridError(f"{h!r} deg is not allowed; use (-90, 90) or leave it out",
+                                 "sensor.min_sun_elevation_deg")
 
     def kernel_args(self) -> tuple[float, float, float]:
         """(el_min_rad, eta_max_rad or 0, range_max_km or 0) as the kernel takes them."""

@@ -11,11 +11,12 @@ from __future__ import annotations
 import numpy as np
 import numpy.typing as npt
 
-from covergrid.constants import AU_KM, DEG, JD_J2000
+from covergrid.constants import AU_KM, DEG, JD_J2000, TWO_PI
 from covergrid.earth.frames import eci_to_ecef, geodetic_to_ecef, up_vector
 from covergrid.earth.time import gmst_rad, julian_date
 
-__all__ = ["sun_position_eci_km", "sun_direction_eci", "solar_elevation_rad"]
+__all__ = ["mean_sun_right_ascension_rad", "raan_for_local_time_rad", "solar_elevation_rad",
+           "sun_direction_eci", "sun_position_eci_km"]
 
 
 def sun_position_eci_km(
@@ -137,3 +138,72 @@ def solar_elevation_rad(
     s_hat = los / np.linalg.norm(los, axis=-1, keepdims=True)
     up = up_vector(lat_rad, lon_rad)
     return np.arcsin(np.clip(np.sum(up * s_hat, axis=-1), -1.0, 1.0))
+
+
+def mean_sun_right_ascension_rad(
+    epoch: np.datetime64 | str | npt.ArrayLike, offsets_s: npt.ArrayLike = 0.0
+) -> np.ndarray:
+    """Right ascension of the mean Sun, mean equator and equinox of date.
+
+    Parameters
+    ----------
+    epoch : numpy.datetime64, str or array of datetime64
+        Reference instant(s), UTC (used as UT1).
+    offsets_s : array_like
+        Seconds after ``epoch`` [s].
+
+    Returns
+    -------
+    numpy.ndarray
+        Right ascension in ``[0, 2 pi)`` [rad].
+
+    Notes
+    -----
+    Mean solar time is the hour angle of the mean Sun plus 12 h, and universal time is mean
+    solar time at Greenwich (common practice), so the mean Sun's right ascension is the
+    Greenwich mean sidereal angle less the Greenwich hour angle of the mean Sun:
+
+    .. math:: \\alpha_{ms} = \\theta_{GMST} - 15^\\circ/\\mathrm{h}\\,(UT - 12^h)
+
+    with the IAU 1982 sidereal angle of :func:`covergrid.earth.time.gmst_rad` (whose
+    polynomial is the mean Sun's right ascension at 12 h UT, Vallado, *Fundamentals of
+    Astrodynamics and Applications*, 5th ed., sec. 3.5, from memory). It moves 0.9856474 deg
+    per day, as the Astronomical Almanac's mean longitude of the Sun does.
+    """
+    whole, frac = julian_date(epoch, offsets_s)
+    theta = gmst_rad(epoch, offsets_s)
+    return np.mod(theta - TWO_PI * (frac - 0.5), TWO_PI)
+
+
+def raan_for_local_time_rad(
+    ltan_h: npt.ArrayLike, epoch: np.datetime64 | str | npt.ArrayLike
+) -> np.ndarray:
+    """RAAN of an orbit whose ascending node is at a given local mean solar time.
+
+    Parameters
+    ----------
+    ltan_h : array_like
+        Local (mean solar) time of the ascending node, in [0, 24) [h].
+    epoch : numpy.datetime64, str or array of datetime64
+        The instant at which the node has that local time, UTC.
+
+    Returns
+    -------
+    numpy.ndarray
+        Right ascension of the ascending node in ``[0, 2 pi)`` [rad], mean equator and
+        equinox of date (covergrid's inertial frame).
+
+    Notes
+    -----
+    The local mean solar time of a meridian is 12 h plus the hour angle of the mean Sun
+    there, so a node at local time ``LTAN`` lies ``15 deg/h (LTAN - 12 h)`` east of the
+    mean Sun (common practice):
+
+    .. math:: \\Omega = \\alpha_{ms} + 15^\\circ/\\mathrm{h}\\,(LTAN - 12^h)
+
+    (:func:`mean_sun_right_ascension_rad`). A sun-synchronous orbit keeps this local time;
+    the true (apparent) solar time at the node differs from it by the equation of time
+    (within about 16 minutes).
+    """
+    alpha = mean_sun_right_ascension_rad(epoch)
+    return np.mod(alpha + (np.asarray(ltan_h, dtype=float) - 12.0) * (TWO_PI / 24.0), TWO_PI)

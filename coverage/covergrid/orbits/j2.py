@@ -24,7 +24,6 @@ import numpy as np
 
 from covergrid.constants import EARTH_RADIUS_KM, J2, MU_EARTH_KM3_S2, OMEGA_EARTH_RAD_S
 from covergrid.errors import CovergridError, ElementError
-from covergrid.orbits.j2_backends import run_numba, run_numpy
 
 __all__ = [
     "secular_rates",
@@ -224,7 +223,12 @@ def _propagate(
         out_v = _checked_buffer(out_v, shape, "out_v")
     raan_dot, argp_dot, m_dot = secular_rates(els[0], els[1], els[2])
     rates = (np.asarray(raan_dot), np.asarray(argp_dot), np.asarray(m_dot))
-    run = run_numba if _choose_backend(backend) == "numba" else run_numpy
+    # the backends load numba: imported here, so that the secular rates (and the study
+    # checks that use them, such as the sun-synchronous inclination) stay light
+    from covergrid.orbits import j2_backends
+
+    run = (j2_backends.run_numba if _choose_backend(backend) == "numba"
+           else j2_backends.run_numpy)
     return run(els, rates, t, node_offset_rad, node_rate_offset_rad_s, want_v, out,
                rate_terms, out_v)
 

@@ -11,7 +11,6 @@ import math
 from typing import Any
 
 import numpy as np
-from scipy.optimize import brentq
 
 from covergrid.constants import (
     EARTH_RADIUS_KM,
@@ -237,6 +236,8 @@ def repeat_ground_track_a(k_revs: int, d_days: int, i_rad: float, e: float = 0.0
             f"no repeat ground track of {k_revs} revs in {d_days} days near a = {a0:.1f} km",
             field="k_revs",
         )
+    from scipy.optimize import brentq  # here, not at import: study checks stay light
+
     a = float(brentq(mismatch, lo, hi, xtol=1e-9, rtol=4 * np.finfo(float).eps, maxiter=200))
     if a * (1.0 - ecc) <= EARTH_RADIUS_KM:
         raise ElementError(

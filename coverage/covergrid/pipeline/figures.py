@@ -97,6 +97,8 @@ def study_caption(study: ResolvedStudy) -> str:
         info.update(pattern=t.pattern, total=t.total, planes=t.planes, phasing=t.phasing,
                     altitude_km=t.altitude_km, inclination_deg=t.inclination_deg)
     text = design_caption(info)
+    if s.min_sun_elevation_deg is not None:
+        text += f" Daylight only: Sun at least {s.min_sun_elevation_deg:g} deg high."
     if not study.single_walker:
         n, g = study.n_satellites, study.n_groups
         text = (f"{n} satellite{'s' if n != 1 else ''} in {g} group{'s' if g != 1 else ''}. "

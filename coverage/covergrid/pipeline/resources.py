@@ -24,9 +24,10 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from covergrid.compute.dop_spec import dop_state_bytes_per_cell
 from covergrid.compute.grid import row_bands
 from covergrid.compute.kernel_state import state_bytes_per_cell, state_bytes_per_satellite_row
-from covergrid.compute.metrics import INTEGER_METRICS, METRICS
+from covergrid.compute.metrics import COVERAGE_METRICS, DOP_METRICS, INTEGER_METRICS
 from covergrid.compute.sensor import Sensor
 from covergrid.compute.span import POSITION_BLOCK_BYTES
 from covergrid.constants import MU_EARTH_KM3_S2, WGS84_A_KM
@@ -40,7 +41,7 @@ from covergrid.pipeline.figures import (
     TRACK_SAMPLES,
     figure_processes_at_most,
 )
-from covergrid.study.build import as_resolved
+from covergrid.study.build import as_resolved, trade_orbits
 
 if TYPE_CHECKING:
     from covergrid.study.build import ComputeOptions, ResolvedStudy
@@ -87,9 +88,11 @@ MAP_S_PER_CELL = 2.0e-6
 # --- memory ---------------------------------------------------------------------------
 #: Bytes per cell of the finished Dataset besides nfold_fraction: a float64 per real metric,
 #: an int32 per integer metric (covergrid.compute.metrics) and the float64 cell area.
-OUTPUT_BYTES_PER_CELL = (8 * sum(1 for m in METRICS if m != "nfold_fraction"
+OUTPUT_BYTES_PER_CELL = (8 * sum(1 for m in COVERAGE_METRICS if m != "nfold_fraction"
                                  and m not in INTEGER_METRICS)
                          + 4 * len(INTEGER_METRICS) + 8)
+#: Bytes per cell the DOP metrics add to the finished Dataset (float64 each).
+DOP_OUTPUT_BYTES_PER_CELL = 8 * len(DOP_METRICS)
 #: Resident memory of a run besides the per-cell terms: the interpreter with numpy, numba,
 #: dask, xarray and netCDF4 imported (0.29 GB peak for a 2 deg study) plus what computing
 #: and writing adds (about 0.25 GB). Fitted to peak RSS (GNU time -v) of `covergrid run` on
@@ -306,11 +309,13 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     bands = row_bands(rows, study.compute.chunk_rows)
     b_rows = max(b - a for a, b in bands)
     running = min(tasks, len(bands))
-    out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k)
-    # per running task: the band's streaming state, the position buffer and the previous
-    # interval per satellite and row (its finished metrics are counted in results)
-    per_task = (b_rows * cols * state_bytes_per_cell(k) + POSITION_BLOCK_BYTES
-                + state_bytes_per_satellite_row() * n_sat * b_rows)
+    dop = study.dop is not None
+    out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k + (DOP_OUTPUT_BYTES_PER_CELL if dop else 0))
+    # per running task: the band's streaming state (and DOP state), the position buffer and
+    # the previous interval per satellite and row (its finished metrics are counted in results)
+    per_task = (b_rows * cols * (state_bytes_per_cell(k)
+                                 + (dop_state_bytes_per_cell() if dop else 0))
+                + POSITION_BLOCK_BYTES + state_bytes_per_satellite_row() * n_sat * b_rows)
     parts = {
         "baseline": _BASELINE_BYTES,
         "results": int(_RESULT_COPIES * out_bytes),
@@ -437,13 +442,13 @@ def check_resources(study: ResolvedStudy | Study, est: dict[str, Any] | None = N
 
 # --- trades -----------------------------------------------------------------------------
 def _trade_space(study: ResolvedStudy, block: str):
-    """(altitudes, inclinations, elevations, totals, counts) of a sweep or sizing block."""
+    """(orbits, elevations, totals, counts) of a sweep or sizing block: the (altitude,
+    inclination) pairs (:func:`covergrid.study.build.trade_orbits`), the elevations, and
+    the Walker totals with their pattern counts."""
     t = study.walker
     if block == "sweep":
         sw = study.sweep
         assert sw is not None and t is not None
-        alts = sw.altitude_km or [t.altitude_km]
-        incs = sw.inclination_deg or [t.inclination_deg]
         els = sw.min_elevation_deg or [study.sensor.min_elevation_deg]
         planes = sw.planes if sw.planes is not None else [t.planes]
         phasing = sw.phasing if sw.phasing is not None else [t.phasing]
@@ -451,11 +456,10 @@ def _trade_space(study: ResolvedStudy, block: str):
     else:
         sz = study.sizing
         assert sz is not None
-        alts, incs = sz.altitude_km, sz.inclination_deg
         els = [study.sensor.min_elevation_deg]
         totals, counts = walker_option_counts(range(sz.total.min, sz.total.max + 1),
                                               sz.planes, sz.phasing)
-    return sorted(set(alts)), sorted(set(incs)), sorted(set(els)), totals, counts
+    return trade_orbits(study, block), sorted(set(els)), totals, counts
 
 
 def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
@@ -476,7 +480,7 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         ``largest_total``.
     """
     study = as_resolved(study)
-    alts, incs, els, totals, counts = _trade_space(study, block)
+    orbits, els, totals, counts = _trade_space(study, block)
     cells = study.grid.n_cells
     coarse = study.sizing.coarse if block == "sizing" and study.sizing is not None else None
     if coarse is not None and study.sizing is not None and study.sizing.prune \
@@ -487,12 +491,12 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         cells = max(cells, rows * round(360.0 / coarse.resolution_deg))
     band_share = _band_share(study)
     sensors = [dataclasses.replace(study.sensor, min_elevation_deg=el) for el in els]
-    a_km = np.array([WGS84_A_KM + a for a in alts])
+    # one entry per (altitude, inclination): the work depends on the altitude only
+    a_km = np.array([WGS84_A_KM + a for a, _ in orbits])
     cells_civ = sum(float(np.sum(_civ(a_km, s, cells, band_share))) for s in sensors)
     rows_sum = sum(float(np.sum(_footprint_rows(a_km, s, study))) for s in sensors)
-    n_points = len(incs)  # designs per (altitude, elevation, pattern)
-    designs = len(alts) * len(incs) * len(els) * int(counts.sum())
-    satellites_sum = n_points * float(np.sum(totals * counts))  # per (alt, el)
+    designs = len(orbits) * len(els) * int(counts.sum())
+    satellites_sum = float(np.sum(totals * counts))  # per (orbit, elevation)
     visits = cells_civ * band_share * study.n_steps * satellites_sum
     row_samples = rows_sum * study.n_steps * satellites_sum
     evaluations = designs
@@ -504,13 +508,16 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         visits *= 2 if sz.prune else 1
         row_samples *= 2 if sz.prune else 1
         if sz.robust_to_one_loss:  # at most T single losses per design, at one total
-            evaluations += len(alts) * len(incs) * int((counts * totals).max(initial=0))
+            evaluations += len(orbits) * int((counts * totals).max(initial=0))
     tasks, processes, remote = concurrency(study.compute)
     k = study.nfold_max
-    out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k)
-    per_design = (cells * state_bytes_per_cell(k) + (_RESULT_COPIES + _WRITER_COPIES)
-                  * out_bytes + POSITION_BLOCK_BYTES + 4 * 4 * largest * study.grid.n_lat)
-    columns = _ROW_FIXED_COLUMNS + _ROW_STATISTICS * (len(METRICS) - 1 + k)
+    dop = study.dop is not None
+    out_bytes = cells * (OUTPUT_BYTES_PER_CELL + 8 * k + (DOP_OUTPUT_BYTES_PER_CELL if dop else 0))
+    per_design = (cells * (state_bytes_per_cell(k) + (dop_state_bytes_per_cell() if dop else 0))
+                  + (_RESULT_COPIES + _WRITER_COPIES) * out_bytes + POSITION_BLOCK_BYTES
+                  + 4 * 4 * largest * study.grid.n_lat)
+    columns = _ROW_FIXED_COLUMNS + _ROW_STATISTICS * (
+        len(COVERAGE_METRICS) - 1 + k + (len(DOP_METRICS) if dop else 0))
     parts = {
         "baseline": _BASELINE_BYTES,
         "designs": 0 if remote else int(tasks * per_design),

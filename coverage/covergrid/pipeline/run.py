@@ -289,6 +289,7 @@ def _compute(resolved: ResolvedStudy, progress: bool):
             resolved.grid, resolved.sensor, nfold_max=resolved.nfold_max,
             chunk_rows=resolved.compute.chunk_rows, scheduler=sched, progress=progress,
             attrs=dataset_attrs(resolved), refine_transitions=resolved.refine_transitions,
+            dop=resolved.dop,
         )
 
 

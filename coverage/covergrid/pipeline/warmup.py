@@ -30,11 +30,11 @@ _EPOCH = "2031-03-20T00:00:00Z"
 
 def compiled_functions() -> dict[str, Any]:
     """The numba dispatchers of the compiled modules, by dotted name."""
-    from covergrid.compute import kernel
+    from covergrid.compute import daylight, dop, kernel
     from covergrid.orbits import j2_backends
 
     found = {}
-    for module in (kernel, j2_backends):
+    for module in (kernel, daylight, dop, j2_backends):
         for name, obj in vars(module).items():
             if hasattr(obj, "stats") and hasattr(obj, "signatures"):
                 found[f"{module.__name__}.{name}"] = obj
@@ -53,6 +53,7 @@ def warm_compiled_code() -> dict[str, Any]:
     """
     import numpy as np
 
+    from covergrid.compute.dop_spec import DopSpec
     from covergrid.compute.engine import compute_coverage
     from covergrid.compute.grid import GridSpec
     from covergrid.compute.sensor import Sensor
@@ -65,6 +66,12 @@ def warm_compiled_code() -> dict[str, Any]:
     for sensor in (Sensor(10.0), Sensor(0.0, max_off_nadir_deg=40.0, max_range_km=3000.0)):
         compute_coverage(elements, _EPOCH, 3600.0, 60.0, GridSpec(30.0), sensor,
                          scheduler="synchronous")
+    # the daylight constraint and the dilutions of precision (navigation, imaging studies)
+    compute_coverage(elements, _EPOCH, 3600.0, 60.0, GridSpec(30.0),
+                     Sensor(0.0, max_off_nadir_deg=40.0, min_sun_elevation_deg=10.0),
+                     scheduler="synchronous")
+    compute_coverage(elements, _EPOCH, 3600.0, 60.0, GridSpec(30.0), Sensor(5.0),
+                     scheduler="synchronous", dop=DopSpec())
     propagate_to_ecef(elements, np.linspace(0.0, 3600.0, 11), float(gmst_rad(_EPOCH, 0.0)))
     compiled, loaded = [], []
     for name, dispatcher in compiled_functions().items():

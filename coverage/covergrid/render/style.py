@@ -71,7 +71,7 @@ FOOTER = "Design study result: secular J2, mean elements; not for operations."
 _FONT_PT = {"base": 9.0, "title": 11.0, "caption": 8.0, "footer": 6.5}
 
 _FAMILY_CMAP = {"fraction": "viridis", "duration": "cividis", "count": "magma",
-                "level": "magma"}
+                "level": "magma", "dop": "magma"}
 
 
 @contextlib.contextmanager
@@ -109,8 +109,8 @@ def metric_kind(name: str, units: str | None) -> str:
     -------
     str
         The kind in ``covergrid.compute.metrics.METRICS`` (``"fraction"``, ``"duration"``,
-        ``"count"`` or ``"level"``) for a registered metric; otherwise ``"duration"`` (units
-        "s"), ``"fraction"`` (``*_fraction``) or ``"count"``.
+        ``"count"``, ``"level"`` or ``"dop"``) for a registered metric; otherwise
+        ``"duration"`` (units "s"), ``"fraction"`` (``*_fraction``) or ``"count"``.
     """
     from covergrid.compute.metrics import METRICS
 

@@ -15,11 +15,13 @@ from the file to the kernel along one path:
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
+from covergrid.compute.dop_spec import DopSpec
 from covergrid.compute.grid import GridSpec
 from covergrid.compute.region import Region
 from covergrid.compute.requirement import Requirement
@@ -34,11 +36,17 @@ from covergrid.orbits.element_set import ElementSet
 from covergrid.study.messages import format_path
 from covergrid.study.models import Study
 from covergrid.study.place_sections import TargetRequirementSection
-from covergrid.study.sections import GroupEntry, SatelliteEntry
+from covergrid.study.sections import (
+    SUN_SYNCHRONOUS,
+    GroupEntry,
+    SatelliteEntry,
+    sun_synchronous_inclination_deg,
+)
 from covergrid.study.trade_sections import SizingSection, SweepSection
 
 __all__ = [
     "ComputeOptions",
+    "DerivedValue",
     "MapOptions",
     "ResolvedStudy",
     "WalkerTemplate",
@@ -47,6 +55,7 @@ __all__ = [
     "group_prefix",
     "nfold_max_of",
     "resolve",
+    "trade_orbits",
 ]
 
 #: Largest fold K of nfold_fraction computed when no requirement asks for more.
@@ -70,12 +79,36 @@ class WalkerTemplate:
     raan_deg: float
     arg_perigee_deg: float
     mean_anomaly_deg: float
+    sun_synchronous: bool = False
+    ltan_h: float | None = None
 
     def orbit(self) -> dict[str, Any]:
         """The template orbit besides altitude and inclination (what a design inherits)."""
         return {"eccentricity": self.eccentricity, "raan_deg": self.raan_deg,
                 "arg_perigee_deg": self.arg_perigee_deg,
                 "mean_anomaly_deg": self.mean_anomaly_deg}
+
+
+@dataclass(frozen=True)
+class DerivedValue:
+    """A value the study asked to be derived (``covergrid check`` prints them).
+
+    Attributes
+    ----------
+    path : str
+        The study key it stands for (``constellation[0].template.inclination_deg``).
+    value : float
+        The derived value [unit].
+    unit : str
+        ``deg``.
+    how : str
+        From what and by which rule.
+    """
+
+    path: str
+    value: float
+    unit: str
+    how: str
 
 
 @dataclass(frozen=True)
@@ -143,6 +176,10 @@ class ResolvedStudy:
         Point targets (evaluated exactly at each site).
     target_requirement : TargetRequirementSection or None
         The requirement over the targets.
+    derived : tuple of DerivedValue
+        Values derived from others (sun-synchronous inclinations, RAANs from ltan_h).
+    dop : DopSpec or None
+        The dilution-of-precision request (the ``dop:`` section), or None.
     """
 
     name: str
@@ -167,6 +204,8 @@ class ResolvedStudy:
     resolved_yaml: str = field(default="", repr=False)
     targets: Targets | None = None
     target_requirement: TargetRequirementSection | None = None
+    derived: tuple[DerivedValue, ...] = ()
+    dop: DopSpec | None = None
 
     @property
     def n_satellites(self) -> int:
@@ -215,7 +254,8 @@ def resolve(study: Study) -> ResolvedStudy:
         n_steps=count_steps(study.duration_s, study.step_s),
         elements=elements,
         sensor=Sensor(min_elevation_deg=s.min_elevation_deg,
-                      max_off_nadir_deg=s.max_off_nadir_deg, max_range_km=s.max_range_km),
+                      max_off_nadir_deg=s.max_off_nadir_deg, max_range_km=s.max_range_km,
+                      min_sun_elevation_deg=s.min_sun_elevation_deg),
         grid=_grid(study),
         nfold_max=nfold_max_of(len(elements), requirement),
         refine_transitions=study.refine_transitions,
@@ -232,6 +272,8 @@ def resolve(study: Study) -> ResolvedStudy:
         resolved_yaml=study.dump_resolved_yaml(),
         targets=_targets(study),
         target_requirement=None if study.targets is None else study.targets.requirement,
+        derived=derived_values(study),
+        dop=None if study.dop is None else DopSpec(pdop_threshold=study.dop.pdop_threshold),
     )
 
 
@@ -277,8 +319,10 @@ def _walker_template(study: Study) -> WalkerTemplate | None:
             return WalkerTemplate(
                 pattern=k.pattern, total=k.total, planes=k.planes, phasing=k.phasing,
                 altitude_km=t.a_km - WGS84_A_KM, eccentricity=t.eccentricity,
-                inclination_deg=t.inclination_deg, raan_deg=t.raan_deg,
-                arg_perigee_deg=t.arg_perigee_deg, mean_anomaly_deg=t.mean_anomaly_deg)
+                inclination_deg=t.inclination_value_deg,
+                raan_deg=_raan_deg(t.raan_deg, t.ltan_h, study.epoch),
+                arg_perigee_deg=t.arg_perigee_deg, mean_anomaly_deg=t.mean_anomaly_deg,
+                sun_synchronous=t.sun_synchronous, ltan_h=t.ltan_h)
     return None
 
 
@@ -299,7 +343,7 @@ def build_elements(study: Study) -> ElementSet:
     for gi, group in enumerate(study.constellation):
         prefix = group_prefix(group, gi, len(study.constellation))
         try:
-            sets.append(_group_elements(group, prefix))
+            sets.append(_group_elements(group, prefix, study.epoch))
         except ElementError as exc:
             raise StudyError(str(exc), field=format_path(("constellation", gi))) from None
     all_ids = [i for s in sets for i in s.ids]
@@ -322,14 +366,15 @@ def group_prefix(group: GroupEntry, index: int, n_groups: int) -> str:
     return "S" if n_groups == 1 else f"G{index + 1}"
 
 
-def _group_elements(group: GroupEntry, prefix: str) -> ElementSet:
+def _group_elements(group: GroupEntry, prefix: str, epoch: str) -> ElementSet:
     if group.walker is not None:
         t = group.template
         assert t is not None
         return w.walker(
             group.walker.pattern, group.walker.total, group.walker.planes, group.walker.phasing,
-            a_km=t.a_km, e=t.eccentricity, i_rad=t.inclination_deg * DEG,
-            raan0_rad=t.raan_deg * DEG, argp_rad=t.arg_perigee_deg * DEG,
+            a_km=t.a_km, e=t.eccentricity, i_rad=t.inclination_value_deg * DEG,
+            raan0_rad=_raan_deg(t.raan_deg, t.ltan_h, epoch) * DEG,
+            argp_rad=t.arg_perigee_deg * DEG,
             M0_rad=t.mean_anomaly_deg * DEG, id_prefix=prefix,
         )
     sats = group.satellites or []
@@ -339,26 +384,102 @@ def _group_elements(group: GroupEntry, prefix: str) -> ElementSet:
         v = np.array([s.velocity_km_s for s in sats], dtype=float)
         return w.from_state_vectors(r, v, ids)
     if not any(s.is_state_vector for s in sats):
-        return _keplerian_set(sats, ids)
+        return _keplerian_set(sats, ids, epoch)
     parts = []
     for s in sats:
         if s.is_state_vector:
             parts.append(w.from_state_vectors(np.array([s.position_km], dtype=float),
                                               np.array([s.velocity_km_s], dtype=float), (s.id,)))
         else:
-            parts.append(_keplerian_set([s], (s.id,)))
+            parts.append(_keplerian_set([s], (s.id,), epoch))
     return ElementSet.concat(parts)
 
 
-def _keplerian_set(sats: list[SatelliteEntry], ids: tuple[str, ...]) -> ElementSet:
+def _raan_deg(raan_deg: float | None, ltan_h: float | None, epoch: str) -> float:
+    """The RAAN [deg]: as given (0 if not), or the one that puts the ascending node at local
+    mean solar time ``ltan_h`` at the epoch
+    (:func:`covergrid.earth.sun.raan_for_local_time_rad`)."""
+    if ltan_h is None:
+        return float(raan_deg or 0.0)
+    from covergrid.earth.sun import raan_for_local_time_rad
+
+    return math.degrees(float(raan_for_local_time_rad(ltan_h, parse_epoch(epoch))))
+
+
+def derived_values(study: Study) -> tuple[DerivedValue, ...]:
+    """The inclinations and RAANs a study derives (``sun-synchronous``, ``ltan_h``)."""
+    out: list[DerivedValue] = []
+    for gi, group in enumerate(study.constellation):
+        entries: list[tuple[str, Any]] = []
+        if group.template is not None:
+            entries.append((format_path(("constellation", gi, "template")), group.template))
+        for si, sat in enumerate(group.satellites or []):
+            if not sat.is_state_vector:
+                entries.append((format_path(("constellation", gi, "satellites", si)), sat))
+        for where, orbit in entries:
+            e = orbit.eccentricity or 0.0
+            alt = orbit.a_km - WGS84_A_KM
+            if orbit.inclination_deg == SUN_SYNCHRONOUS:
+                out.append(DerivedValue(f"{where}.inclination_deg", orbit.inclination_value_deg,
+                                        "deg", f"sun-synchronous at {alt:g} km altitude and e = "
+                                        f"{e:g}: secular J2 turns the node once per "
+                                        "tropical year"))
+            if orbit.ltan_h is not None:
+                out.append(DerivedValue(f"{where}.raan_deg",
+                                        _raan_deg(None, orbit.ltan_h, study.epoch), "deg",
+                                        f"ascending node at local mean solar time "
+                                        f"{_clock(orbit.ltan_h)} at {study.epoch}"))
+    return tuple(out)
+
+
+def _clock(hours: float) -> str:
+    """``10:30`` for 10.5 h (to the nearest second: ``10:30:15``)."""
+    total = round(hours * 3600.0)
+    h, rest = divmod(total, 3600)
+    m, sec = divmod(rest, 60)
+    return f"{h:02d}:{m:02d}" + (f":{sec:02d}" if sec else "")
+
+
+def trade_orbits(study: ResolvedStudy, block: str) -> list[tuple[float, float]]:
+    """The (altitude [km], inclination [deg]) pairs of a ``sweep`` or ``sizing`` block, in
+    order (altitude first).
+
+    Each altitude takes every listed inclination, or, for ``inclination_deg:
+    sun-synchronous`` (and for a sweep without an inclination axis whose template is
+    sun-synchronous), the sun-synchronous inclination at that altitude with the template's
+    eccentricity.
+    """
+    t = study.walker
+    e = t.eccentricity if t is not None else 0.0
+    if block == "sweep":
+        sw = study.sweep
+        assert sw is not None and t is not None
+        alts = sw.altitude_km or [t.altitude_km]
+        incs: Any = sw.inclination_deg
+        if incs is None:
+            incs = SUN_SYNCHRONOUS if t.sun_synchronous else [t.inclination_deg]
+    else:
+        sz = study.sizing
+        assert sz is not None
+        alts, incs = sz.altitude_km, sz.inclination_deg
+    pairs = []
+    for alt in dict.fromkeys(float(a) for a in alts):
+        if incs == SUN_SYNCHRONOUS:
+            pairs.append((alt, sun_synchronous_inclination_deg(
+                WGS84_A_KM + alt, e, (block, "altitude_km"))))
+        else:
+            pairs += [(alt, float(i)) for i in dict.fromkeys(incs)]
+    return pairs
+
+
+def _keplerian_set(sats: list[SatelliteEntry], ids: tuple[str, ...], epoch: str) -> ElementSet:
     def arr(getter):
         return np.array([getter(s) for s in sats], dtype=float)
 
-    a = arr(lambda s: s.semi_major_axis_km if s.semi_major_axis_km is not None
-            else WGS84_A_KM + s.altitude_km)
+    a = arr(lambda s: s.a_km)
     e = arr(lambda s: s.eccentricity or 0.0)
-    i = arr(lambda s: s.inclination_deg) * DEG
-    raan = arr(lambda s: s.raan_deg or 0.0) * DEG
+    i = arr(lambda s: s.inclination_value_deg) * DEG
+    raan = arr(lambda s: _raan_deg(s.raan_deg, s.ltan_h, epoch)) * DEG
     argp = arr(lambda s: s.arg_perigee_deg or 0.0) * DEG
     true_given = [s.true_anomaly_deg is not None for s in sats]
     if all(true_given):
@@ -367,7 +488,7 @@ def _keplerian_set(sats: list[SatelliteEntry], ids: tuple[str, ...]) -> ElementS
     if not any(true_given):
         return w.from_keplerian(a, e, i, raan, argp,
                                 mean_anomaly_rad=arr(lambda s: s.mean_anomaly_deg) * DEG, ids=ids)
-    parts = [_keplerian_set([s], (sid,)) for s, sid in zip(sats, ids, strict=True)]
+    parts = [_keplerian_set([s], (sid,), epoch) for s, sid in zip(sats, ids, strict=True)]
     return ElementSet.concat(parts)
 
 

@@ -16,13 +16,16 @@ import yaml
 from pydantic import Field, field_validator, model_validator
 
 from covergrid.compute.span import count_steps
+from covergrid.constants import WGS84_A_KM
 from covergrid.errors import CovergridError
 from covergrid.orbits.walker import count_walker_options
 from covergrid.study.messages import Problems, format_path, reason_of
 from covergrid.study.place_sections import RegionSection, TargetsSection
 from covergrid.study.sections import (
     NAME_RE,
+    SUN_SYNCHRONOUS,
     ComputeSection,
+    DopSection,
     GridSection,
     GroupEntry,
     MapsSection,
@@ -31,6 +34,7 @@ from covergrid.study.sections import (
     SectionModel,
     SensorSection,
     orbit_size_problems,
+    sun_synchronous_inclination_deg,
     text_id,
 )
 from covergrid.study.trade_sections import (
@@ -66,6 +70,8 @@ class Study(SectionModel):
         None, description="Compute only the cells in GeoJSON areas and/or on land or sea.")
     targets: TargetsSection | None = Field(
         None, description="Point targets evaluated exactly at each site.")
+    dop: DopSection | None = Field(None, description="Also compute the dilutions of precision "
+                                   "(navigation studies).")
     maps: MapsSection = Field(default_factory=lambda: MapsSection.model_validate({}))
     compute: ComputeSection = Field(default_factory=lambda: ComputeSection.model_validate({}))
     output: OutputSection = Field(default_factory=lambda: OutputSection.model_validate({}))
@@ -162,6 +168,12 @@ class Study(SectionModel):
                 problems.append((("requirement", "k"), f"exceeds the number of satellites "
                                  f"{total}; allowed: 1 to {total}", self.requirement.k))
         problems += _trade_problems(self)
+        problems += _dop_problems(self)
+        if self.targets is not None and self.sensor.min_sun_elevation_deg is not None:
+            # the point-target passes are geometric (rise and set by the sensor's limits)
+            problems.append((("targets",), "passes of point targets do not yet apply a "
+                             "daylight constraint; leave out sensor.min_sun_elevation_deg or "
+                             "targets", None))
         if self.sensor.max_range_km is not None and not problems:
             # every satellite stays at least (perigee radius - equatorial radius) from the
             # ground: a shorter range limit means nothing is ever in view
@@ -226,6 +238,25 @@ def _span_problems(study: Study) -> list[tuple[tuple, str, Any]]:
     return []
 
 
+def _dop_problems(study: Study) -> list[tuple[tuple, str, Any]]:
+    """A DOP metric in the requirement or the maps needs the ``dop:`` section."""
+    if study.dop is not None:
+        if study.sensor.min_sun_elevation_deg is not None:
+            return [(("dop",), "is computed from every satellite in view, day and night; "
+                     "leave out sensor.min_sun_elevation_deg (a daylight constraint) or dop",
+                     None)]
+        return []
+    from covergrid.compute.metrics import DOP_METRICS
+
+    uses: list[tuple[tuple, str]] = []
+    if study.requirement is not None and study.requirement.metric in DOP_METRICS:
+        uses.append((("requirement", "metric"), study.requirement.metric))
+    uses += [(("maps", "metrics", i), m) for i, m in enumerate(study.maps.metrics)
+             if m in DOP_METRICS]
+    return [(where, "is a dilution-of-precision metric: add a dop: section (dop: "
+             "{pdop_threshold: 6}) to compute it", m) for where, m in uses]
+
+
 def _lowest_perigee_altitude_km(group: GroupEntry) -> float:
     """Lowest perigee altitude a(1 - e) - R_E of a group's satellites [km]."""
     if group.template is not None:
@@ -248,19 +279,29 @@ def _trade_problems(study: Study) -> list[tuple[tuple, str, Any]]:
                              "(walker + template): the sweep substitutes its values into it",
                              None))
         else:
-            problems += _altitude_problems("sweep", study.sweep.altitude_km, e)
+            sso = (study.sweep.inclination_deg == SUN_SYNCHRONOUS
+                   or (study.sweep.inclination_deg is None and group.template.sun_synchronous))
+            problems += _altitude_problems("sweep", study.sweep.altitude_km, e, sso)
             problems += _sweep_size_problems(study.sweep, group)
     if study.sizing is not None:
-        problems += _altitude_problems("sizing", study.sizing.altitude_km, e)
+        problems += _altitude_problems("sizing", study.sizing.altitude_km, e,
+                                       study.sizing.inclination_deg == SUN_SYNCHRONOUS)
         problems += _sizing_size_problems(study.sizing)
     return problems
 
 
-def _altitude_problems(block: str, altitudes, e: float) -> list[tuple[tuple, str, Any]]:
+def _altitude_problems(block: str, altitudes, e: float, sso: bool = False
+                       ) -> list[tuple[tuple, str, Any]]:
     """Each altitude of a trade block with the template's eccentricity: perigee above the
-    surface, apogee inside the sphere of influence (the first bad one is reported)."""
+    surface, apogee inside the sphere of influence, and with ``sso`` a sun-synchronous
+    inclination (the first bad one is reported)."""
     for i, alt in enumerate(altitudes or []):
         found = orbit_size_problems(alt, None, e, size_key="altitude_km")
+        if not found and sso:
+            try:
+                sun_synchronous_inclination_deg(WGS84_A_KM + alt, e)
+            except Problems as exc:
+                found = exc.problems
         if found:
             (_, text, _), = found
             where = ("" if e == 0 else

@@ -15,7 +15,14 @@ import re
 import typing
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    field_validator,
+    model_validator,
+)
 
 from covergrid.compute.grid import grid_shape
 from covergrid.constants import EARTH_SOI_RADIUS_KM, MU_EARTH_KM3_S2, WGS84_A_KM
@@ -30,7 +37,10 @@ __all__ = [
     "MIN_BAND_WIDTH_DEG",
     "NAME_RE",
     "SCHEDULERS",
+    "SUN_SYNCHRONOUS",
+    "SUN_SYNCHRONOUS_MAX_A_KM",
     "ComputeSection",
+    "DopSection",
     "GridSection",
     "GroupEntry",
     "MapsSection",
@@ -44,6 +54,7 @@ __all__ = [
     "check_scheduler",
     "metric_names",
     "orbit_size_problems",
+    "sun_synchronous_inclination_deg",
     "text_id",
 ]
 
@@ -92,6 +103,30 @@ class SectionModel(BaseModel):
 
 Angle360 = Annotated[float, Field(ge=-360.0, le=360.0)]
 Inclination = Annotated[float, Field(ge=0.0, le=180.0)]
+#: The value of an ``inclination_deg`` key that asks for the sun-synchronous inclination.
+SUN_SYNCHRONOUS = "sun-synchronous"
+
+
+def _inclination_or_sso(value: Any) -> Any:
+    """One clear message for an inclination that is neither 0..180 deg nor sun-synchronous
+    (instead of one message per member of the union)."""
+    allowed = "allowed: 0.0 <= value <= 180.0 (deg) or sun-synchronous"
+    if isinstance(value, str):
+        if value == SUN_SYNCHRONOUS:
+            return value
+        raise ValueError(f"not allowed{did_you_mean(value, [SUN_SYNCHRONOUS])}; {allowed}")
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise ValueError(f"must be a number or sun-synchronous; {allowed}")
+    if not (math.isfinite(value) and 0.0 <= value <= 180.0):
+        raise ValueError(f"out of range; {allowed}")
+    return value
+
+
+#: An inclination, or ``sun-synchronous``: derived from the orbit's size and eccentricity.
+InclinationOrSSO = Annotated[Inclination | Literal["sun-synchronous"],
+                             BeforeValidator(_inclination_or_sso)]
+#: Local time of the ascending node [h].
+LocalTime = Annotated[float, Field(ge=0.0, lt=24.0)]
 Vector3 = Annotated[list[float], Field(min_length=3, max_length=3)]
 
 
@@ -117,8 +152,13 @@ class TemplateSection(SectionModel):
     )
     semi_major_axis_km: float | None = Field(None, gt=0.0, description="Semi-major axis [km].")
     eccentricity: float = Field(0.0, ge=0.0, lt=1.0, description="Eccentricity [unitless].")
-    inclination_deg: Inclination = Field(description="Inclination [deg].")
+    inclination_deg: InclinationOrSSO = Field(
+        description="Inclination [deg], or sun-synchronous (derived from the size and "
+        "eccentricity with secular J2).")
     raan_deg: Angle360 = Field(0.0, description="RAAN of the first plane [deg].")
+    ltan_h: LocalTime | None = Field(
+        None, description="Local mean solar time of the first plane's ascending node at the "
+        "epoch [h], instead of raan_deg.")
     arg_perigee_deg: Angle360 = Field(0.0, description="Argument of perigee [deg].")
     mean_anomaly_deg: Angle360 = Field(
         0.0, description="Mean anomaly of the first satellite of the first plane [deg]."
@@ -128,9 +168,26 @@ class TemplateSection(SectionModel):
     def _check(self) -> TemplateSection:
         problems = orbit_size_problems(self.altitude_km, self.semi_major_axis_km,
                                        self.eccentricity)
+        if self.ltan_h is not None and "raan_deg" in self.model_fields_set:
+            problems.append((("ltan_h",), "give either raan_deg or ltan_h (which sets the "
+                             "RAAN from the mean Sun at the epoch), not both", self.ltan_h))
         if problems:
             raise Problems(problems)
+        if self.inclination_deg == SUN_SYNCHRONOUS:
+            sun_synchronous_inclination_deg(self.a_km, self.eccentricity)
         return self
+
+    @property
+    def sun_synchronous(self) -> bool:
+        """True when the inclination is to be derived (``inclination_deg: sun-synchronous``)."""
+        return self.inclination_deg == SUN_SYNCHRONOUS
+
+    @property
+    def inclination_value_deg(self) -> float:
+        """The inclination [deg]: as given, or the sun-synchronous one."""
+        if isinstance(self.inclination_deg, str):
+            return sun_synchronous_inclination_deg(self.a_km, self.eccentricity)
+        return float(self.inclination_deg)
 
     @property
     def a_km(self) -> float:
@@ -192,6 +249,50 @@ def orbit_size_problems(alt_km, a_km, e, *, size_key: str | None = None
     return []
 
 
+def sun_synchronous_inclination_deg(a_km: float, e: float, key: tuple = ("inclination_deg",)
+                                    ) -> float:
+    """The sun-synchronous inclination of an orbit [deg] (secular J2, one node turn per
+    tropical year: :func:`covergrid.orbits.special.sun_synchronous_inclination`).
+
+    Raises
+    ------
+    Problems
+        At ``key`` when no inclination makes the orbit sun-synchronous (too high), with the
+        highest circular altitude that can be.
+    """
+    from covergrid.errors import ElementError
+    from covergrid.orbits.special import sun_synchronous_inclination
+
+    try:
+        return math.degrees(float(sun_synchronous_inclination(a_km, e)))
+    except ElementError:
+        raise Problems([(key, f"no inclination makes this orbit sun-synchronous (a = "
+                         f"{_km(a_km)} km, e = {e:g}): secular J2 turns its node less than "
+                         "360 deg a year at any inclination; allowed: sun-synchronous orbits "
+                         f"with a(1 - e^2)^(4/7) below {SUN_SYNCHRONOUS_MAX_A_KM:,.0f} km "
+                         f"(circular orbits below {SUN_SYNCHRONOUS_MAX_A_KM - WGS84_A_KM:,.0f} "
+                         "km altitude)",
+                         SUN_SYNCHRONOUS)]) from None
+
+
+def _sun_synchronous_max_a_km() -> float:
+    """Largest circular semi-major axis with a sun-synchronous inclination (i = 180 deg):
+    where the secular J2 node rate at cos i = -1 equals the Sun's mean motion [km].
+
+    The node rate is proportional to a^(-7/2) (1 - e^2)^(-2), hence the a(1 - e^2)^(4/7)
+    of the message above.
+    """
+    from covergrid.constants import EARTH_RADIUS_KM, J2, SECONDS_PER_DAY, TROPICAL_YEAR_DAYS
+
+    sun_rate = 2.0 * math.pi / (TROPICAL_YEAR_DAYS * SECONDS_PER_DAY)
+    # 1.5 J2 R^2 sqrt(mu) a^(-7/2) = sun_rate  (Vallado 4th ed. eq. 9-41 at e = 0, cos i = 1)
+    return (1.5 * J2 * EARTH_RADIUS_KM**2 * math.sqrt(MU_EARTH_KM3_S2) / sun_rate) ** (2.0 / 7.0)
+
+
+#: Largest circular semi-major axis that can be sun-synchronous [km] (12,352 km).
+SUN_SYNCHRONOUS_MAX_A_KM = _sun_synchronous_max_a_km()
+
+
 class WalkerSection(SectionModel):
     """A Walker pattern T/P/F."""
 
@@ -234,8 +335,12 @@ class SatelliteEntry(SectionModel):
     semi_major_axis_km: float | None = Field(None, gt=0.0, description="Semi-major axis [km].")
     eccentricity: float | None = Field(None, ge=0.0, lt=1.0,
                                        description="Eccentricity (0 if not given).")
-    inclination_deg: Inclination | None = Field(None, description="Inclination [deg].")
+    inclination_deg: InclinationOrSSO | None = Field(
+        None, description="Inclination [deg], or sun-synchronous (derived with secular J2).")
     raan_deg: Angle360 | None = Field(None, description="RAAN [deg] (0 if not given).")
+    ltan_h: LocalTime | None = Field(
+        None, description="Local mean solar time of the ascending node at the epoch [h], "
+        "instead of raan_deg.")
     arg_perigee_deg: Angle360 | None = Field(None, description="Argument of perigee [deg] (0 if "
                                              "not given).")
     true_anomaly_deg: Angle360 | None = Field(None, description="True anomaly [deg].")
@@ -245,7 +350,7 @@ class SatelliteEntry(SectionModel):
 
     _ELEMENT_KEYS: typing.ClassVar[tuple[str, ...]] = (
         "altitude_km", "semi_major_axis_km", "eccentricity", "inclination_deg", "raan_deg",
-        "arg_perigee_deg", "true_anomaly_deg", "mean_anomaly_deg",
+        "arg_perigee_deg", "true_anomaly_deg", "mean_anomaly_deg", "ltan_h",
     )
 
     _id_text = field_validator("id", mode="before")(text_id)
@@ -256,8 +361,10 @@ class SatelliteEntry(SectionModel):
         """Fill eccentricity, RAAN and argument of perigee with 0 for Keplerian satellites."""
         if isinstance(data, dict) and "position_km" not in data and "velocity_km_s" not in data:
             data = dict(data)
-            for key in ("eccentricity", "raan_deg", "arg_perigee_deg"):
+            for key in ("eccentricity", "arg_perigee_deg"):
                 data.setdefault(key, 0.0)
+            if "ltan_h" not in data:
+                data.setdefault("raan_deg", 0.0)
         return data
 
     @property
@@ -287,9 +394,28 @@ class SatelliteEntry(SectionModel):
         if (self.true_anomaly_deg is None) == (self.mean_anomaly_deg is None):
             problems.append((("true_anomaly_deg",), "give exactly one of true_anomaly_deg or "
                              "mean_anomaly_deg", self.true_anomaly_deg))
+        if self.ltan_h is not None and self.raan_deg is not None:
+            problems.append((("ltan_h",), "give either raan_deg or ltan_h (which sets the "
+                             "RAAN from the mean Sun at the epoch), not both", self.ltan_h))
         if problems:
             raise Problems(problems)
+        if self.inclination_deg == SUN_SYNCHRONOUS:
+            sun_synchronous_inclination_deg(self.a_km, self.eccentricity or 0.0)
         return self
+
+    @property
+    def a_km(self) -> float:
+        """Semi-major axis of a Keplerian satellite [km]."""
+        if self.semi_major_axis_km is not None:
+            return self.semi_major_axis_km
+        return WGS84_A_KM + float(self.altitude_km)  # type: ignore[arg-type]
+
+    @property
+    def inclination_value_deg(self) -> float:
+        """The inclination of a Keplerian satellite [deg]: as given, or sun-synchronous."""
+        if isinstance(self.inclination_deg, str):
+            return sun_synchronous_inclination_deg(self.a_km, self.eccentricity or 0.0)
+        return float(self.inclination_deg)  # type: ignore[arg-type]
 
     def _check_state(self) -> SatelliteEntry:
         """Two-body energy and perigee of the state vector (Vallado 5th ed., Algorithm 9)."""
@@ -323,9 +449,7 @@ class SatelliteEntry(SectionModel):
         if self.is_state_vector:
             _, _, _, a_km, e, _ = _two_body(self.position_km, self.velocity_km_s)
             return a_km * (1.0 - e) - WGS84_A_KM
-        a_km = (self.semi_major_axis_km if self.semi_major_axis_km is not None
-                else WGS84_A_KM + float(self.altitude_km))  # type: ignore[arg-type]
-        return a_km * (1.0 - (self.eccentricity or 0.0)) - WGS84_A_KM
+        return self.a_km * (1.0 - (self.eccentricity or 0.0)) - WGS84_A_KM
 
 
 def _two_body(position_km, velocity_km_s) -> tuple[float, float, float, float, float, float]:
@@ -390,6 +514,9 @@ class SensorSection(SectionModel):
                                             description="Sensor half-cone angle [deg].")
     max_range_km: float | None = Field(None, gt=0.0, le=MAX_RANGE_KM,
                                        description="Maximum slant range [km].")
+    min_sun_elevation_deg: float | None = Field(
+        None, gt=-90.0, lt=90.0, description="Daylight: a cell counts as seen only while the "
+        "Sun is at least this high above its horizon [deg] (optical imaging).")
 
 
 class GridSection(SectionModel):
@@ -443,6 +570,13 @@ class RequirementSection(SectionModel):
             raise Problems([(("at_most",), "give exactly one of at_most or at_least",
                               self.at_most)])
         return self
+
+
+class DopSection(SectionModel):
+    """Dilution of precision per cell from the satellites in view (navigation studies)."""
+
+    pdop_threshold: float = Field(6.0, gt=0.0, le=1000.0, description="pdop_fraction counts "
+                                  "the time with PDOP at or below this [unitless].")
 
 
 class MapsSection(SectionModel):

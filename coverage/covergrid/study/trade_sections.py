@@ -13,7 +13,7 @@ from typing import Annotated, Any, Literal
 from pydantic import Field, WithJsonSchema, field_validator, model_validator
 
 from covergrid.study.messages import Problems, did_you_mean, show_value
-from covergrid.study.sections import Inclination, SectionModel
+from covergrid.study.sections import SUN_SYNCHRONOUS, Inclination, SectionModel
 
 __all__ = ["SIZING_MAX_DESIGNS", "SWEEP_MAX_DESIGNS", "CoarseSection", "SizingSection",
            "SweepSection", "TotalRange"]
@@ -79,6 +79,17 @@ def _float_axis(value: Any) -> Any:
     return _axis(value, integer=False)
 
 
+def _inclination_axis(value: Any) -> Any:
+    """An inclination axis, or ``sun-synchronous`` (one inclination per altitude)."""
+    if isinstance(value, str):
+        if value == SUN_SYNCHRONOUS:
+            return value
+        raise Problems([((), f"not allowed{did_you_mean(value, [SUN_SYNCHRONOUS])}; allowed: "
+                          "sun-synchronous, a number, a list of them or a range "
+                          "{from, to, step}", value)])
+    return _axis(value, integer=False)
+
+
 def _int_axis(value: Any) -> Any:
     return _axis(value, integer=True)
 
@@ -130,7 +141,9 @@ class SweepSection(SectionModel):
     pattern: Literal["delta", "star"] | None = Field(
         None, description="Walker pattern (default: the study's group's).")
     altitude_km: PositiveAxis | None = Field(None, description="Altitudes a - R_E [km].")
-    inclination_deg: InclinationAxis | None = Field(None, description="Inclinations [deg].")
+    inclination_deg: InclinationAxis | Literal["sun-synchronous"] | None = Field(
+        None, description="Inclinations [deg], or sun-synchronous (derived at each altitude; "
+        "also the default when the study's template is sun-synchronous).")
     total: CountAxis | None = Field(None, description="Totals T.")
     planes: Literal["all"] | CountAxis | None = Field(
         None, description="Planes P, or all (every divisor of T).")
@@ -139,8 +152,8 @@ class SweepSection(SectionModel):
     min_elevation_deg: ElevationAxis | None = Field(
         None, description="Minimum elevations [deg].")
 
-    _floats = field_validator("altitude_km", "inclination_deg", "min_elevation_deg",
-                              mode="before")(_float_axis)
+    _floats = field_validator("altitude_km", "min_elevation_deg", mode="before")(_float_axis)
+    _incs = field_validator("inclination_deg", mode="before")(_inclination_axis)
     _ints = field_validator("total", mode="before")(_int_axis)
     _choices = field_validator("planes", "phasing", mode="before")(_choice_axis)
 
@@ -188,7 +201,8 @@ class SizingSection(SectionModel):
 
     pattern: Literal["delta", "star"] = Field("delta", description="Walker pattern.")
     altitude_km: PositiveAxis = Field(description="Altitudes a - R_E [km].")
-    inclination_deg: InclinationAxis = Field(description="Inclinations [deg].")
+    inclination_deg: InclinationAxis | Literal["sun-synchronous"] = Field(
+        description="Inclinations [deg], or sun-synchronous (derived at each altitude).")
     total: TotalRange = Field(description="Totals to try {min, max}.")
     planes: Literal["all"] | CountAxis = Field(
         "all", description="Planes P, or all (every divisor of T).")
@@ -203,5 +217,6 @@ class SizingSection(SectionModel):
     prune: bool = Field(True, description="Evaluate coarsely first and prune (see coarse).")
     coarse: CoarseSection = Field(default_factory=lambda: CoarseSection.model_validate({}))
 
-    _floats = field_validator("altitude_km", "inclination_deg", mode="before")(_float_axis)
+    _floats = field_validator("altitude_km", mode="before")(_float_axis)
+    _incs = field_validator("inclination_deg", mode="before")(_inclination_axis)
     _choices = field_validator("planes", "phasing", mode="before")(_choice_axis)

@@ -14,6 +14,7 @@ from typing import Any
 
 import numpy as np
 
+from covergrid.compute.dop_spec import DopSpec
 from covergrid.compute.grid import GridSpec
 from covergrid.compute.requirement import Requirement
 from covergrid.compute.sensor import Sensor
@@ -117,6 +118,8 @@ class EvalContext:
     refine_transitions : bool
         Gap boundaries at limit-crossing times (see
         :func:`covergrid.compute.engine.compute_coverage`).
+    dop : DopSpec or None
+        Also compute the dilutions of precision (the study's ``dop:`` section).
     """
 
     epoch: str
@@ -128,6 +131,7 @@ class EvalContext:
     requirement: Requirement | None
     software: str
     refine_transitions: bool = True
+    dop: DopSpec | None = None
 
     @property
     def resolution_deg(self) -> float:

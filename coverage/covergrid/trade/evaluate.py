@@ -13,7 +13,7 @@ import time
 from typing import Any
 
 from covergrid.compute.engine import compute_coverage
-from covergrid.compute.metrics import METRICS
+from covergrid.compute.metrics import COVERAGE_METRICS, METRICS
 from covergrid.compute.summary import area_statistics, region_area
 from covergrid.trade.designs import EvalContext, WalkerDesign
 
@@ -36,6 +36,8 @@ def statistics_row(ds) -> dict[str, float]:
     area = region_area(ds).transpose("lat", "lon").values  # zero outside the region
     row: dict[str, float] = {}
     for name in METRICS:
+        if name not in ds:  # the DOP metrics, without a dop: section
+            continue
         var = ds[name]
         fields = ([(f"{name}_k{int(k)}", var.sel(k=k)) for k in var["k"].values]
                   if "k" in var.dims else [(name, var)])
@@ -68,7 +70,7 @@ def evaluate_design(design: WalkerDesign, context: EvalContext) -> dict[str, Any
     ds = compute_coverage(design.elements(), context.epoch, context.duration_s, context.step_s,
                           grid, context.sensor_for(design), nfold_max=context.nfold_max,
                           chunk_rows=grid.n_lat, scheduler="synchronous",
-                          refine_transitions=context.refine_transitions)
+                          refine_transitions=context.refine_transitions, dop=context.dop)
     row: dict[str, Any] = {
         "pattern": design.pattern, "total": design.total, "planes": design.planes,
         "phasing": design.phasing, "altitude_km": design.altitude_km,
@@ -85,10 +87,10 @@ def evaluate_design(design: WalkerDesign, context: EvalContext) -> dict[str, Any
     return row
 
 
-def row_columns(nfold_max: int, requirement: bool) -> list[str]:
-    """Column order of a design table."""
+def row_columns(nfold_max: int, requirement: bool, dop: bool = False) -> list[str]:
+    """Column order of a design table (with ``dop``, the DOP metrics' columns too)."""
     cols = list(DESIGN_COLUMNS)
-    for name in METRICS:
+    for name in METRICS if dop else COVERAGE_METRICS:
         prefixes = ([f"{name}_k{k}" for k in range(1, nfold_max + 1)]
                     if name == "nfold_fraction" else [name])
         cols += [f"{p}_{s}" for p in prefixes for s in STATISTICS]

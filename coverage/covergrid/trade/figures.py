@@ -29,7 +29,7 @@ def trade_figures(rows: list[dict], study: ResolvedStudy, folder: Path, *,
     if not rows:
         return []
     has_req = study.requirement is not None
-    columns = row_columns(study.nfold_max, has_req)
+    columns = row_columns(study.nfold_max, has_req, study.dop is not None)
     table = columns_table(rows, columns)
     if study.requirement is not None:
         r = study.requirement

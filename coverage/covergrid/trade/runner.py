@@ -135,7 +135,8 @@ def run_designs(designs: Sequence[WalkerDesign], context: EvalContext, store,
         (rows in the order of ``designs``, each with its ``key``; number computed now).
     """
     keys = [result_key(context.inputs(d)) for d in designs]
-    columns = row_columns(context.nfold_max, context.requirement is not None)
+    columns = row_columns(context.nfold_max, context.requirement is not None,
+                          context.dop is not None)
     rows: dict[str, dict] = {}
     todo: dict[str, WalkerDesign] = {}
     for key, d in zip(keys, designs, strict=True):

@@ -62,7 +62,7 @@ from covergrid.compute.span import count_steps
 from covergrid.errors import CovergridError, StudyError
 from covergrid.orbits.walker import walker_options
 from covergrid.pipeline.resources import check_trade_resources
-from covergrid.study.build import as_resolved
+from covergrid.study.build import as_resolved, trade_orbits
 from covergrid.trade.designs import EvalContext, WalkerDesign
 from covergrid.trade.figures import trade_figures
 from covergrid.trade.runner import design_runner, run_designs
@@ -233,8 +233,7 @@ def size_study(study: ResolvedStudy | Study, store=None, *, scheduler: str | Non
     coarse = coarse_context(study) if sz.prune else None
     extras = study.walker.orbit() if study.walker is not None else {}
     el = study.sensor.min_elevation_deg
-    cells = [(float(a), float(i)) for a in dict.fromkeys(sz.altitude_km)
-             for i in dict.fromkeys(sz.inclination_deg)]
+    cells = trade_orbits(study, "sizing")
     found: dict[tuple[float, float], dict] = {}
     tried: dict[tuple[float, float], int] = {c: 0 for c in cells}
     per_cell = {c: {"coarse": 0, "full": 0, "pruned": 0} for c in cells}

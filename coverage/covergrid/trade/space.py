@@ -16,7 +16,7 @@ from covergrid.compute.metrics import METRICS
 from covergrid.compute.quantities import requirement_text
 from covergrid.errors import StudyError
 from covergrid.orbits.walker import walker_options
-from covergrid.study.build import as_resolved
+from covergrid.study.build import as_resolved, trade_orbits
 from covergrid.trade.designs import EvalContext, WalkerDesign
 from covergrid.trade.store import software_fingerprint
 
@@ -38,14 +38,16 @@ def evaluation_context(study: ResolvedStudy | Study, *, resolution_deg: float | 
                        step_s=float(step_s if step_s is not None else study.step_s),
                        grid=grid, sensor=study.sensor, nfold_max=int(study.nfold_max),
                        requirement=study.requirement, software=software_fingerprint(),
-                       refine_transitions=bool(study.refine_transitions))
+                       refine_transitions=bool(study.refine_transitions), dop=study.dop)
 
 
 def sweep_designs(study: ResolvedStudy | Study) -> list[WalkerDesign]:
     """Every design of the study's ``sweep:`` block, in file order of the axes.
 
     Order: altitude, inclination, minimum elevation, total, planes, phasing (the last
-    varies fastest). Values not listed keep the study's Walker group or sensor value.
+    varies fastest). Values not listed keep the study's Walker group or sensor value; a
+    sun-synchronous template (or ``inclination_deg: sun-synchronous``) gives each altitude
+    its own inclination (:func:`covergrid.study.build.trade_orbits`).
 
     Raises
     ------
@@ -60,8 +62,6 @@ def sweep_designs(study: ResolvedStudy | Study) -> list[WalkerDesign]:
                          field="sweep")
     t = study.walker
     assert t is not None  # the study model requires one Walker group with a sweep
-    alts = sw.altitude_km or [t.altitude_km]
-    incs = sw.inclination_deg or [t.inclination_deg]
     els = sw.min_elevation_deg or [study.sensor.min_elevation_deg]
     totals = sw.total or [t.total]
     planes = sw.planes if sw.planes is not None else [t.planes]
@@ -69,13 +69,12 @@ def sweep_designs(study: ResolvedStudy | Study) -> list[WalkerDesign]:
     pattern = sw.pattern or t.pattern
     extras = t.orbit()
     designs = []
-    for alt in dict.fromkeys(alts):
-        for inc in dict.fromkeys(incs):
-            for el in dict.fromkeys(els):
-                for total in dict.fromkeys(totals):
-                    for p, f in walker_options(total, planes, phasing):
-                        designs.append(WalkerDesign(pattern, int(total), p, f, float(alt),
-                                                    float(inc), float(el), **extras))
+    for alt, inc in trade_orbits(study, "sweep"):
+        for el in dict.fromkeys(els):
+            for total in dict.fromkeys(totals):
+                for p, f in walker_options(total, planes, phasing):
+                    designs.append(WalkerDesign(pattern, int(total), p, f, float(alt),
+                                                float(inc), float(el), **extras))
     if not designs:
         raise StudyError(f"no combination of total {list(totals)}, planes {planes} and "
                          f"phasing {phasing} is a Walker pattern (planes must divide the "

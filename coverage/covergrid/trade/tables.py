@@ -39,7 +39,8 @@ def write_table(rows: list[dict], study: ResolvedStudy, folder: Path, stem: str)
     """Write a design table as ``<stem>.csv`` and ``<stem>.nc`` (dimension ``design``)."""
     import xarray as xr
 
-    columns = row_columns(study.nfold_max, study.requirement is not None)
+    columns = row_columns(study.nfold_max, study.requirement is not None,
+                          study.dop is not None)
     files = [io.write_csv([{c: r.get(c, math.nan) for c in columns} for r in rows],
                           folder / f"{stem}.csv", columns)]
     table = columns_table(rows, columns)
