@@ -350,30 +350,13 @@ def _compute_tasks(tasks: list[Any], scheduler: str | Any, progress: bool) -> li
             raise CovergridError(
                 f"{scheduler!r} is not a scheduler here; use one of {', '.join(valid)} or pass "
                 "a dask.distributed Client", "compute.scheduler")
-        # the local schedulers' functions, not their names: given a name, dask imports
-        # dask.distributed to look for a default client (about 0.3 s of a run's start-up)
-        kwargs: dict[str, Any] = {"scheduler": _local_scheduler(scheduler)}
+        kwargs: dict[str, Any] = {"scheduler": scheduler}
     else:  # a dask.distributed Client
         kwargs = {"scheduler": scheduler}
     if progress:
         with _BandProgress({t.key for t in tasks}):
             return list(dask.compute(*tasks, **kwargs))
     return list(dask.compute(*tasks, **kwargs))
-
-
-def _local_scheduler(name: str) -> Any:
-    """The get function of a local dask scheduler by its name."""
-    if name == "threads":
-        import dask.threaded
-
-        return dask.threaded.get
-    if name == "synchronous":
-        import dask.local
-
-        return dask.local.get_sync
-    import dask.multiprocessing
-
-    return dask.multiprocessing.get
 
 
 class _BandProgress:
