@@ -24,7 +24,6 @@ from covergrid.compute.targets import (
     Targets,
     evaluate_targets,
     pass_statistics,
-    positions_at,
     target_verdict,
 )
 from covergrid.constants import MU_EARTH_KM3_S2, WGS84_A_KM
@@ -120,7 +119,7 @@ def test_positions_at_match_propagation():
     t = np.array([0.0, 17.5, 3600.0, 86399.0])
     sat = np.array([0, 3, 7, 11])
     want = j2.propagate_to_ecef(els, t, THETA0)[sat, np.arange(4)]
-    np.testing.assert_allclose(positions_at(els, sat, t, THETA0), want, rtol=0, atol=1e-6)
+    np.testing.assert_allclose(j2.ecef_positions_at(els, sat, t, THETA0), want, rtol=0, atol=1e-6)
 
 
 def test_rise_and_set_against_sgp4():

@@ -34,7 +34,7 @@ from covergrid.constants import WGS84_A_KM, WGS84_E2
 from covergrid.errors import CovergridError
 
 __all__ = ["PASS_COLUMNS", "TARGET_METRICS", "Targets", "evaluate_targets", "pass_statistics",
-           "positions_at", "target_verdict"]
+           "target_verdict"]
 
 #: Per-target metrics: (units, long name).
 TARGET_METRICS = {
@@ -89,39 +89,6 @@ class Targets:
         pos = np.stack([(n + h) * np.cos(lat) * np.cos(lon), (n + h) * np.cos(lat) * np.sin(lon),
                         (n * (1.0 - WGS84_E2) + h) * np.sin(lat)], axis=-1)
         return pos, normal
-
-
-def positions_at(elements: Any, sat: np.ndarray, t_s: np.ndarray,
-                 theta0_rad: float) -> np.ndarray:
-    """Earth-fixed positions (n, 3) [km] of satellites ``sat[k]`` at times ``t_s[k]`` [s].
-
-    Secular J2 moves the node, perigee and mean anomaly linearly in time (and the Earth's
-    rotation the node, in the Earth-fixed frame), so each satellite's elements are moved to
-    its own time and all are propagated at t = 0 in one call: the same positions as
-    :func:`covergrid.orbits.j2.propagate_to_ecef` at those times.
-    """
-    from covergrid.constants import OMEGA_EARTH_RAD_S
-    from covergrid.orbits import j2
-
-    a = np.asarray(elements.a_km)[sat]
-    e = np.asarray(elements.e)[sat]
-    inc = np.asarray(elements.i_rad)[sat]
-    raan_dot, argp_dot, m_dot = j2.secular_rates(a, e, inc)
-    t = np.asarray(t_s, float)
-    raan = np.asarray(elements.raan_rad)[sat] + (raan_dot - OMEGA_EARTH_RAD_S) * t
-    moved = _Elements(a, e, inc, raan, np.asarray(elements.argp_rad)[sat] + argp_dot * t,
-                      np.asarray(elements.M_rad)[sat] + m_dot * t)
-    return j2.propagate_to_ecef(moved, np.zeros(1), theta0_rad)[:, 0, :]
-
-
-@dataclass
-class _Elements:
-    a_km: np.ndarray
-    e: np.ndarray
-    i_rad: np.ndarray
-    raan_rad: np.ndarray
-    argp_rad: np.ndarray
-    M_rad: np.ndarray
 
 
 def evaluate_targets(elements: Any, theta0_rad: float, duration_s: float, step_s: float,
@@ -263,6 +230,8 @@ def _pair_up(events: np.ndarray, t_end: float, step_s: float) -> dict[str, np.nd
 def _peaks(elements: Any, theta0: float, targets: Targets,
            passes: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     """Maximum elevation of every pass and its time (golden section; see the module)."""
+    from covergrid.orbits import j2
+
     n = passes["rise"].size
     if n == 0:
         return {"max_elevation_deg": np.zeros(0), "max_elevation_time": np.zeros(0)}
@@ -272,7 +241,7 @@ def _peaks(elements: Any, theta0: float, targets: Targets,
     sat = passes["satellite"]
 
     def sin_el(t: np.ndarray) -> np.ndarray:
-        d = positions_at(elements, sat, t, theta0) - p
+        d = j2.ecef_positions_at(elements, sat, t, theta0) - p
         return np.einsum("ij,ij->i", d, nrm) / np.linalg.norm(d, axis=1)
 
     a = passes["rise"].astype(float).copy()

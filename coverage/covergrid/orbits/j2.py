@@ -18,6 +18,7 @@ needs no libm call), about 75 ns for eccentric ones, about 175-300 ns with NumPy
 from __future__ import annotations
 
 import math
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -31,6 +32,7 @@ __all__ = [
     "positions",
     "propagate_to_ecef",
     "propagate_to_ecef_with_velocity",
+    "ecef_positions_at",
 ]
 
 _ELEMENT_FIELDS = ("a_km", "e", "i_rad", "raan_rad", "argp_rad", "M_rad")
@@ -467,3 +469,23 @@ def propagate_to_ecef_with_velocity(
                       rate_terms=True, out_v=out_v)
     assert v is not None
     return r, v
+
+
+def ecef_positions_at(elements: Any, sat: Any, t_s: Any, theta0_rad: float) -> np.ndarray:
+    """Earth-fixed positions (n, 3) [km] of satellites ``sat[k]`` each at its own time
+    ``t_s[k]`` [s] (e.g. the peaks of many passes, in one call).
+
+    Secular J2 moves the node, perigee and mean anomaly linearly in time (and the Earth's
+    rotation the node, in the Earth-fixed frame), so each satellite's elements are moved to
+    its own time and all are propagated at t = 0: the same positions as
+    :func:`propagate_to_ecef` at those times.
+    """
+    a, e, i, raan, argp, m = _element_arrays(elements)
+    sat = np.asarray(sat, dtype=np.intp)
+    t = np.asarray(t_s, dtype=np.float64)
+    a, e, i = a[sat], e[sat], i[sat]
+    raan_dot, argp_dot, m_dot = secular_rates(a, e, i)
+    moved = SimpleNamespace(a_km=a, e=e, i_rad=i,
+                            raan_rad=raan[sat] + (raan_dot - OMEGA_EARTH_RAD_S) * t,
+                            argp_rad=argp[sat] + argp_dot * t, M_rad=m[sat] + m_dot * t)
+    return propagate_to_ecef(moved, np.zeros(1), theta0_rad)[:, 0, :]
