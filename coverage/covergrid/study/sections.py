@@ -52,8 +52,10 @@ __all__ = [
     "TemplateSection",
     "WalkerSection",
     "check_scheduler",
+    "inclination_value_deg",
     "metric_names",
     "orbit_size_problems",
+    "semi_major_axis_km",
     "sun_synchronous_inclination_deg",
     "text_id",
 ]
@@ -185,21 +187,33 @@ class TemplateSection(SectionModel):
     @property
     def inclination_value_deg(self) -> float:
         """The inclination [deg]: as given, or the sun-synchronous one."""
-        if isinstance(self.inclination_deg, str):
-            return sun_synchronous_inclination_deg(self.a_km, self.eccentricity)
-        return float(self.inclination_deg)
+        return inclination_value_deg(self.inclination_deg, self.a_km, self.eccentricity)
 
     @property
     def a_km(self) -> float:
         """Semi-major axis [km]."""
-        if self.semi_major_axis_km is not None:
-            return self.semi_major_axis_km
-        return WGS84_A_KM + float(self.altitude_km)  # type: ignore[arg-type]
+        return semi_major_axis_km(self.altitude_km, self.semi_major_axis_km)
 
     @property
     def perigee_altitude_km(self) -> float:
         """a(1 - e) minus the WGS 84 equatorial radius [km]."""
         return self.a_km * (1.0 - self.eccentricity) - WGS84_A_KM
+
+
+def semi_major_axis_km(altitude_km: float | None, semi_major_axis_km: float | None) -> float:
+    """The semi-major axis of an orbit given by either key [km] (the altitude is above the
+    WGS 84 equatorial radius); the model validators have made sure one of them is given."""
+    if semi_major_axis_km is not None:
+        return semi_major_axis_km
+    return WGS84_A_KM + float(altitude_km)  # type: ignore[arg-type]
+
+
+def inclination_value_deg(inclination: float | str, a_km: float, e: float) -> float:
+    """The inclination [deg]: as given, or the sun-synchronous one for ``sun-synchronous``
+    (:func:`sun_synchronous_inclination_deg`, secular J2)."""
+    if isinstance(inclination, str):
+        return sun_synchronous_inclination_deg(a_km, e)
+    return float(inclination)
 
 
 def orbit_size_problems(alt_km, a_km, e, *, size_key: str | None = None
@@ -406,16 +420,13 @@ class SatelliteEntry(SectionModel):
     @property
     def a_km(self) -> float:
         """Semi-major axis of a Keplerian satellite [km]."""
-        if self.semi_major_axis_km is not None:
-            return self.semi_major_axis_km
-        return WGS84_A_KM + float(self.altitude_km)  # type: ignore[arg-type]
+        return semi_major_axis_km(self.altitude_km, self.semi_major_axis_km)
 
     @property
     def inclination_value_deg(self) -> float:
         """The inclination of a Keplerian satellite [deg]: as given, or sun-synchronous."""
-        if isinstance(self.inclination_deg, str):
-            return sun_synchronous_inclination_deg(self.a_km, self.eccentricity or 0.0)
-        return float(self.inclination_deg)  # type: ignore[arg-type]
+        return inclination_value_deg(self.inclination_deg, self.a_km,  # type: ignore[arg-type]
+                                     self.eccentricity or 0.0)
 
     def _check_state(self) -> SatelliteEntry:
         """Two-body energy and perigee of the state vector (Vallado 5th ed., Algorithm 9)."""
