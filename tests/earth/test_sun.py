@@ -174,9 +174,10 @@ def test_mean_sun_against_astropy_true_sun_is_the_equation_of_time(date, eot_min
     # (RA of the mean Sun - RA of the true Sun) / 15 deg/h.
     from covergrid.earth.sun import mean_sun_right_ascension_rad
 
-    t = Time(date, scale="utc")
     with warnings.catch_warnings():
-        warnings.simplefilter("ignore")  # ERFA "dubious year" past the leap-second table
+        # ERFA "dubious year" past the leap-second table (raised by the UTC date itself)
+        warnings.simplefilter("ignore")
+        t = Time(date, scale="utc")
         true_ra = get_sun(t).transform_to(PrecessedGeocentric(equinox=t, obstime=t)).ra.rad
     mean_ra = float(mean_sun_right_ascension_rad(parse_epoch(date + "Z")))
     eot = np.rad2deg((mean_ra - true_ra + np.pi) % (2 * np.pi) - np.pi) * 4.0  # min of time
