@@ -12,11 +12,17 @@ from dataclasses import dataclass
 
 from covergrid.errors import CovergridError
 
-__all__ = ["LOOK_SIDES", "Sensor"]
+__all__ = ["LOOK_SIDES", "Sensor", "is_side_looking"]
 
 #: Which side of the ground track a side-looking sensor sees, and its sign in the kernel:
 #: +1 left of the Earth-fixed velocity (n . p >= 0 with n = r x v), -1 right, 0 both.
 LOOK_SIDES = {"left": 1, "right": -1, "both": 0}
+
+
+def is_side_looking(min_off_nadir_deg: float | None, look_side: str) -> bool:
+    """Whether limits see an off-nadir annulus or one side of the track only (the one rule,
+    for :class:`Sensor` and the study's checks alike)."""
+    return min_off_nadir_deg is not None or look_side != "both"
 
 
 @dataclass(frozen=True)
@@ -88,7 +94,7 @@ class Sensor:
     @property
     def side_looking(self) -> bool:
         """Whether the sensor sees an off-nadir annulus or one side of the track only."""
-        return self.min_off_nadir_deg is not None or self.look_side != "both"
+        return is_side_looking(self.min_off_nadir_deg, self.look_side)
 
     def kernel_args(self) -> tuple[float, float, float]:
         """(el_min_rad, eta_max_rad or 0, range_max_km or 0) as the kernel takes them."""
