@@ -271,3 +271,65 @@ def test_sensor_refuses_bad_annulus_values():
     assert not Sensor(0.0, max_off_nadir_deg=30.0).side_looking
     assert Sensor(0.0, min_off_nadir_deg=20.0, look_side="right").side_args() == (
         math.radians(20.0), -1)
+
+
+# An invented scenario: a small side-looking radar trade on a coarse grid (fast).
+RADAR_SWEEP = {
+    "study": "radar_sweep_test",
+    "epoch": "2031-05-01T00:00:00Z",
+    "duration_h": 6.0,
+    "step_s": 60.0,
+    "constellation": [{"walker": {"pattern": "star", "total": 4, "planes": 2, "phasing": 1},
+                       "template": {"altitude_km": 700.0, "inclination_deg": 97.0}}],
+    "sensor": {"min_elevation_deg": 0.0, "min_off_nadir_deg": 20.0, "max_off_nadir_deg": 45.0,
+               "look_side": "right"},
+    "grid": {"resolution_deg": 10.0},
+    "requirement": {"metric": "max_gap", "at_most": 14400.0, "area_fraction": 0.5},
+    "compute": {"scheduler": "synchronous"},
+    "sweep": {"altitude_km": [700.0, 900.0], "total": [4], "planes": [2], "phasing": [1]},
+}
+
+
+def test_sweep_rows_use_the_side_looking_sensor():
+    """A sweep's designs keep the study's annulus and side (a design replaces only the
+    elevation limit): each row's mean coverage equals a direct run of the design with the
+    side-looking sensor, and differs from the same design looking both ways."""
+    from covergrid.study import parse_study
+    from covergrid.trade.designs import WalkerDesign
+    from covergrid.trade.sweep import run_sweep
+
+    result = run_sweep(parse_study(RADAR_SWEEP), scheduler="synchronous", figures=False,
+                       report=False)
+    assert len(result.rows) == 2
+    for row in result.rows:
+        design = WalkerDesign(row["pattern"], row["total"], row["planes"], row["phasing"],
+                              row["altitude_km"], row["inclination_deg"],
+                              row["min_elevation_deg"])
+        means = {}
+        for side in ("right", "both"):
+            sensor = Sensor(0.0, max_off_nadir_deg=45.0, min_off_nadir_deg=20.0,
+                            look_side=side)
+            ds = compute_coverage(design.elements(), "2031-05-01T00:00:00Z", 6 * 3600.0, 60.0,
+                                  GridSpec(10.0), sensor)
+            means[side] = float(ds.coverage_fraction.weighted(ds.cell_area).mean())
+        assert row["coverage_fraction_mean"] == pytest.approx(means["right"], rel=1e-12)
+        assert means["both"] > 1.5 * means["right"]
+
+
+def test_estimate_counts_the_reach_cells_of_a_side_looking_sensor():
+    """The time estimate of a side-looking study adds the per-cell test of its reach (the
+    calibrated cost per visit of the outer footprint), so it exceeds the plain cone's."""
+    import json
+
+    import covergrid
+    from covergrid.pipeline.resources import KERNEL_S_PER_SIDE_CELL
+    from covergrid.study import parse_study
+
+    data = json.loads(json.dumps(RADAR_SWEEP))
+    del data["sweep"]
+    radar = covergrid.estimate(parse_study(data), maps=False)
+    data["sensor"] = {"min_elevation_deg": 0.0, "max_off_nadir_deg": 45.0}
+    cone = covergrid.estimate(parse_study(data), maps=False)
+    assert radar["visits"] == cone["visits"]  # the same outer footprint
+    extra = radar["visits"] * KERNEL_S_PER_SIDE_CELL / radar["tasks_at_once"]
+    assert radar["compute_s"] == pytest.approx(cone["compute_s"] + extra, rel=1e-9)
