@@ -86,8 +86,8 @@ def test_sampled_kernel_equals_brute_force(sensor):
 def _sub_point(el, t_s=0.0):
     theta0 = float(gmst_rad(EPOCH, 0.0))
     r = j2.propagate_to_ecef(el, np.array([t_s]), theta0)[0, 0]
-    return math.degrees(math.atan2(r[1], r[0])), math.degrees(math.asin(r[2] / np.linalg.norm(r))), \
-        float(np.linalg.norm(r))
+    norm = float(np.linalg.norm(r))
+    return math.degrees(math.atan2(r[1], r[0])), math.degrees(math.asin(r[2] / norm)), norm
 
 
 def _central_angle_deg(eta_deg, r_km, radius_km):

@@ -30,6 +30,10 @@ Cost grows with what changes, not with cells x satellites x steps:
 5. Without ``refine`` every event is at its sample and who is in view at a sample holds
    until the next (sample and hold; the brute-force reference of the tests).
 6. At the end every cell's open level and open gap are closed in one pass.
+7. A side-looking sensor (an off-nadir annulus, one side of the track) is met on up to two
+   intervals of a row, off the satellite's column: the other limits give the row's reach as
+   above, and every cell of it is decided by the exact test of all limits
+   (:mod:`covergrid.compute.side_events`), one branch of :func:`advance`.
 
 The conventions are described in :mod:`covergrid.compute.metrics`. The kernel is compiled
 with numba (cached on disk); with ``NUMBA_DISABLE_JIT=1`` the same code runs as plain
