@@ -333,3 +333,16 @@ def test_estimate_counts_the_reach_cells_of_a_side_looking_sensor():
     assert radar["visits"] == cone["visits"]  # the same outer footprint
     extra = radar["visits"] * KERNEL_S_PER_SIDE_CELL / radar["tasks_at_once"]
     assert radar["compute_s"] == pytest.approx(cone["compute_s"] + extra, rel=1e-9)
+
+
+def test_check_prints_the_side_looking_sensor(capsys):
+    """`covergrid check` states the annulus and the side it looks to."""
+    from pathlib import Path
+
+    from covergrid import cli
+
+    study = Path(__file__).resolve().parents[1] / "configs" / "radar_marram.yaml"
+    assert cli.main(["check", str(study)]) == 0
+    out = capsys.readouterr().out
+    assert ("min off-nadir 20 deg, max off-nadir 45 deg, looking right of the Earth-fixed "
+            "velocity") in out

@@ -10,6 +10,7 @@ them, once, into what the computation takes.
 from __future__ import annotations
 
 import datetime as _dt
+import math
 from typing import Any
 
 import yaml
@@ -180,6 +181,16 @@ class Study(SectionModel):
             problems.append((("targets",), "passes of point targets do not yet apply a "
                              "side-looking sensor; leave out sensor.min_off_nadir_deg and "
                              "sensor.look_side, or targets", None))
+        if self.sensor.min_off_nadir_deg is not None and not problems:
+            # the horizon lies at asin(R / r) off nadir, widest from the lowest perigee and
+            # with the equatorial radius: an inner edge beyond it leaves nothing in view
+            lowest = min(_lowest_perigee_altitude_km(g) for g in self.constellation)
+            horizon = math.degrees(math.asin(WGS84_A_KM / (WGS84_A_KM + lowest)))
+            if self.sensor.min_off_nadir_deg >= horizon:
+                problems.append((("sensor", "min_off_nadir_deg"), f"lies beyond the horizon "
+                                 f"seen from the lowest satellite ({horizon:.2f} deg off "
+                                 f"nadir), so nothing would ever be in view; allowed: less "
+                                 f"than {horizon:.2f} deg", self.sensor.min_off_nadir_deg))
         if self.sensor.max_range_km is not None and not problems:
             # every satellite stays at least (perigee radius - equatorial radius) from the
             # ground: a shorter range limit means nothing is ever in view
