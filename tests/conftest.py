@@ -230,11 +230,16 @@ def cell_centres(resolution_deg, lat_min_deg=-90.0, lat_max_deg=90.0):
 
 
 def visibility(elements, epoch, n_steps, step_s, lat, lon, min_el_deg, max_off_nadir_deg=None,
-               max_range_km=None):
-    """Boolean visibility, (n_steps, n_sat, n_cells), every combination tested."""
+               max_range_km=None, min_off_nadir_deg=None, look_side="both"):
+    """Boolean visibility, (n_steps, n_sat, n_cells), every combination tested.
+
+    A side-looking sensor: off-nadir angle at least ``min_off_nadir_deg``, and the cell on
+    the ``look_side`` ("left", "right", "both") of the Earth-fixed velocity, i.e. the sign
+    of ``(r x v) . p`` (positive: left); from the look angles and vectors directly.
+    """
     theta0 = float(gmst_rad(epoch, 0.0))
     t = np.arange(n_steps) * step_s
-    pos = j2.propagate_to_ecef(elements, t, theta0)  # (n_sat, n_t, 3)
+    pos, vel = j2.propagate_to_ecef_with_velocity(elements, t, theta0)  # (n_sat, n_t, 3)
     la = lat.ravel()
     lo = lon.ravel()
     cells = geodetic_to_ecef(la, lo, 0.0)
@@ -246,8 +251,16 @@ def visibility(elements, epoch, n_steps, step_s, lat, lon, min_el_deg, max_off_n
         ok = el >= math.radians(min_el_deg)
         if max_range_km is not None:
             ok &= rng <= max_range_km
-        if max_off_nadir_deg is not None:
-            ok &= off_nadir_angle(r, cells[None, :, :]) <= math.radians(max_off_nadir_deg)
+        if max_off_nadir_deg is not None or min_off_nadir_deg is not None:
+            eta = off_nadir_angle(r, cells[None, :, :])
+            if max_off_nadir_deg is not None:
+                ok &= eta <= math.radians(max_off_nadir_deg)
+            if min_off_nadir_deg is not None:
+                ok &= eta >= math.radians(min_off_nadir_deg)
+        if look_side != "both":
+            n = np.cross(pos[:, i, :], vel[:, i, :])  # (n_sat, 3)
+            side = cells @ n.T  # (n_cells, n_sat)
+            ok &= (side.T >= 0.0) if look_side == "left" else (side.T <= 0.0)
         vis[i] = ok
     return vis
 

@@ -46,7 +46,8 @@ def test_defaults_are_filled_in():
     s = _study()
     d = s.resolved_dict()
     assert d["sensor"] == {"min_elevation_deg": 10.0, "max_off_nadir_deg": None,
-                           "max_range_km": None, "min_sun_elevation_deg": None}
+                           "max_range_km": None, "min_sun_elevation_deg": None,
+                           "min_off_nadir_deg": None, "look_side": "both"}
     assert d["grid"] == {"resolution_deg": 2.0, "lat_min_deg": -90.0, "lat_max_deg": 90.0,
                          "lon_min_deg": -180.0, "lon_max_deg": 180.0}
     assert d["region"] is None and d["targets"] is None

@@ -423,8 +423,12 @@ def _estimate_text(study, est: dict, trades: dict, derived: list[dict]) -> str:
             groups.append(f"{len(g.satellites)} listed satellite(s)")
     s = study.sensor
     limits = [f"min elevation {s.min_elevation_deg:g} deg"]
+    if s.min_off_nadir_deg is not None:
+        limits.append(f"min off-nadir {s.min_off_nadir_deg:g} deg")
     if s.max_off_nadir_deg is not None:
         limits.append(f"max off-nadir {s.max_off_nadir_deg:g} deg")
+    if s.look_side != "both":
+        limits.append(f"looking {s.look_side} of the Earth-fixed velocity")
     if s.max_range_km is not None:
         limits.append(f"max range {s.max_range_km:g} km")
     if s.min_sun_elevation_deg is not None:

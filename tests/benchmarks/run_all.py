@@ -3,7 +3,7 @@ one table. Figures also go to outputs/bench/results.json. Used by `make bench`.
 
     python tests/benchmarks/run_all.py [name ...]
 
-names: propagation w1 w2 w3 dop process cluster sweep regions targets (default: all).
+names: propagation w1 w2 w3 dop side process cluster sweep regions targets (default: all).
 """
 
 from __future__ import annotations
@@ -25,6 +25,7 @@ BENCHES = {
     "w2": [sys.executable, str(HERE / "bench_coverage.py"), "w2"],
     "w3": [sys.executable, str(HERE / "bench_coverage.py"), "w3"],
     "dop": [sys.executable, str(HERE / "bench_coverage.py"), "dop"],
+    "side": [sys.executable, str(HERE / "bench_coverage.py"), "side"],
     "cluster": [sys.executable, "-c",
                 f"import json, sys; sys.path.insert(0, {str(HERE)!r}); "
                 "import bench_cluster as b; print(json.dumps(b.run()))"],

@@ -102,11 +102,14 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
     dop_state = None if dop is None else dop_module.new_dop_state(n_rows * n_lon, n_sat)
     el_min, eta_max, range_max = sensor.kernel_args()
     sun_min = math.radians(sensor.min_sun_elevation_deg or 0.0)
+    eta_min, side = sensor.side_args()
     # continuous time needs the end of the span as a sample too (the last step's crossings)
     n_samples = n_steps + 1 if refine else n_steps
-    block = position_block_length(n_sat, n_samples, with_velocity=refine)
+    # velocities: for the crossings, and for a side-looking sensor's side of the track
+    with_velocity = refine or sensor.side_looking
+    block = position_block_length(n_sat, n_samples, with_velocity=with_velocity)
     buf = np.empty((n_sat, block, 3))
-    vbuf = np.empty((n_sat, block, 3)) if refine else None
+    vbuf = np.empty((n_sat, block, 3)) if with_velocity else None
     # columns are counted round the circle from the window's western edge; the first n_lon
     # of them are the grid's
     lon0 = math.radians(grid_spec.lon_min_deg)
@@ -125,7 +128,8 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
             pos, vel = j2.propagate_to_ecef(elements, t, theta0_rad, out=out), None
         kernel.run_band(state, pos, i0, geo, lon0, dlon, n_circle, el_min, eta_max, range_max,
                         refine, vel, step_s, n_win=n_lon, cap=cap,
-                        sun_km=_sun_ecef_km(sensor, epoch, t), min_sun_elevation_rad=sun_min)
+                        sun_km=_sun_ecef_km(sensor, epoch, t), min_sun_elevation_rad=sun_min,
+                        min_off_nadir_rad=eta_min, look_side=side)
         if dop_state is not None and dop is not None and i0 < n_steps:
             # DOP is sampled (sample and hold): the span's end sample is not one of its own.
             # It runs over the window's n_lon columns; cells outside a region are computed
@@ -325,6 +329,8 @@ def compute_coverage(
         "covergrid_min_elevation_deg": float(sensor.min_elevation_deg),
         "covergrid_max_off_nadir_deg": float(sensor.max_off_nadir_deg or np.nan),
         "covergrid_max_range_km": float(sensor.max_range_km or np.nan),
+        "covergrid_min_off_nadir_deg": float(sensor.min_off_nadir_deg or np.nan),
+        "covergrid_look_side": sensor.look_side,
         "covergrid_n_satellites": int(n_sat),
         "covergrid_resolution_deg": float(grid.resolution_deg),
         "covergrid_lon_min_deg": float(grid.lon_min_deg),

@@ -15,8 +15,9 @@ derivative in closed form, which the kernel interpolates between samples.
 
 A new limit slots in as one more ``X*_k`` (with its rate) in :func:`row_thresholds`, as
 long as it is met on a half-line of ``X``; the kernel takes their largest and, where the
-binding limit changes within a step, every limit's own interpolant. A limit met on an
-interval (a side-looking annulus) adds an upper threshold and a second interval per row.
+binding limit changes within a step, every limit's own interpolant. A side-looking
+sensor's inner cone is the same quadratic's root taken as an upper threshold (``X <= X*``);
+its cells are decided one by one within the reach (:mod:`covergrid.compute.side_events`).
 """
 
 from __future__ import annotations

@@ -30,6 +30,10 @@ Cost grows with what changes, not with cells x satellites x steps:
 5. Without ``refine`` every event is at its sample and who is in view at a sample holds
    until the next (sample and hold; the brute-force reference of the tests).
 6. At the end every cell's open level and open gap are closed in one pass.
+7. A side-looking sensor (an off-nadir annulus, one side of the track) is met on up to two
+   intervals of a row, off the satellite's column: the other limits give the row's reach as
+   above, and every cell of it is decided by the exact test of all limits
+   (:mod:`covergrid.compute.side_events`), one branch of :func:`advance`.
 
 The conventions are described in :mod:`covergrid.compute.metrics`. The kernel is compiled
 with numba (cached on disk); with ``NUMBA_DISABLE_JIT=1`` the same code runs as plain
@@ -56,6 +60,7 @@ from covergrid.compute.footprint import (
 from covergrid.compute.jit import kernel_function
 from covergrid.compute.kernel_state import HIST0
 from covergrid.compute.row_events import changed_cells, timed_row
+from covergrid.compute.side_events import side_row
 
 #: Widening of the conservative longitude bounds of a row's edges over a step [rad] (about
 #: 0.6 km), far beyond the interpolation error of the threshold and the satellite's track.
@@ -66,7 +71,8 @@ _EDGE_PAD_RAD = 1e-4
 def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_lon, lon0, dlon,
             n_lon, n_win, cap,
             el_min_rad, eta_max_rad, range_max_km, refine, step_s, acc, heads, events,
-            rows_prev, prev_rows, bound_cache, prev_pos, visits, sun_km, prev_sun, sin_h0):
+            rows_prev, prev_rows, bound_cache, prev_pos, visits, sun_km, prev_sun, sin_h0,
+            eta_min_rad, look_side):
     """Advance one latitude band's streaming state over a block of samples.
 
     For each sample, each satellite's rows are visited once: the row's threshold and
@@ -79,7 +85,7 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
     ----------
     pos_km, vel_km_s : ndarray, (n_sat, n_block, 3)
         Earth-fixed satellite positions [km] at samples i0 .. i0 + n_block - 1 and their time
-        derivatives [km/s] (read only with ``refine``).
+        derivatives [km/s] (read only with ``refine`` or a side-looking sensor).
     i0 : int
         Index of the block's first sample.
     rho, zr, sin_lat, cos_lat, psi : ndarray, (n_rows,)
@@ -115,6 +121,11 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
         The Sun at the previous sample (state, updated in place).
     sin_h0 : float
         Sine of the least solar elevation of daylight.
+    eta_min_rad, look_side : float, int
+        A side-looking sensor (:mod:`covergrid.compute.side_events`): the least off-nadir
+        angle (<= 0: none) and the side (+1 left, -1 right, 0 both). The other limits give
+        the row's reach as for any sensor; every cell of the reach is then decided by the
+        exact test of all limits.
     """
     n_sat = pos_km.shape[0]
     n_block = pos_km.shape[1]
@@ -138,6 +149,8 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
             masked = True
             break
     daylight = sun_km.shape[0] > 0
+    annulus = eta_min_rad > 0.0 or look_side != 0
+    ann = (math.cos(eta_min_rad) if eta_min_rad > 0.0 else -2.0, look_side)
     for b in range(n_block):
         i = i0 + b
         timed = refine and i > 0
@@ -157,7 +170,7 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
             x = pos_km[s, b, 0]
             y = pos_km[s, b, 1]
             z = pos_km[s, b, 2]
-            if refine:
+            if refine or annulus:
                 vx = vel_km_s[s, b, 0]
                 vy = vel_km_s[s, b, 1]
                 vz = vel_km_s[s, b, 2]
@@ -282,7 +295,7 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                             m_r = int(math.floor((w - off) / dlon))
                             m_l = int(math.floor((w + off) / dlon))
                         cs, cl = row_interval(x, y, x1, jc, m_r, m_l, cos_lon, sin_lon, n_lon)
-                        nvis += cl
+                        nvis += 0 if annulus else cl
                     if in_c:
                         rows_prev[s, r, 0] = cs
                         rows_prev[s, r, 1] = cl
@@ -290,7 +303,16 @@ def advance(pos_km, vel_km_s, i0, rho, zr, sin_lat, cos_lat, psi, cos_lon, sin_l
                             rows_prev[s, r, 2 + k] = lim1[k]
                     base = r * n_win
                     geo = (px, py, pvx, pvy, x, y, vx, vy, x0, rate0, x1, rate1)
-                    if timed:
+                    if annulus:
+                        # a side-looking sensor: every cell of the row's reach decided by
+                        # the exact test of all its limits (side_events)
+                        nvis += side_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, n_win,
+                                         masked, lon0, dlon, cos_lon, sin_lon,
+                                         (rho[r], zr[r], sin_lat[r], cos_lat[r]),
+                                         (px, py, pz, pvx, pvy, pvz, x, y, z, vx, vy, vz), sat,
+                                         (lim0, lim1), ann, timed, dt,
+                                         t_sample - 1.0 if timed else t_sample, kmax)
+                    elif timed:
                         timed_row(acc, heads, events, base, ps, pl, cs, cl, n_lon, n_win, masked,
                                   lon0, dlon, cos_lon, sin_lon, geo, sat, (lim0, lim1), several,
                                   dt, t_sample - 1.0, kmax)
@@ -323,7 +345,8 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
              refine: bool = True, vel_km_s: np.ndarray | None = None,
              step_s: float = 1.0, n_win: int | None = None,
              cap: tuple[float, float, float, float] | None = None,
-             sun_km: np.ndarray | None = None, min_sun_elevation_rad: float = 0.0) -> None:
+             sun_km: np.ndarray | None = None, min_sun_elevation_rad: float = 0.0,
+             min_off_nadir_rad: float = 0.0, look_side: int = 0) -> None:
     """Python entry point to :func:`advance` with the state held in a dict.
 
     With ``refine``, ``vel_km_s`` (the positions' time derivatives, same shape) and the
@@ -332,13 +355,17 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
     ``cap`` (centre unit vector, radius [rad]) holds every cell of the band (default: the
     whole sphere); see :func:`advance`. ``sun_km`` (n_block, 3), the Sun's Earth-fixed
     positions at the block's samples [km], applies the daylight constraint with the least
-    solar elevation ``min_sun_elevation_rad``.
+    solar elevation ``min_sun_elevation_rad``. ``min_off_nadir_rad`` (> 0) and
+    ``look_side`` (+1 left, -1 right, 0 both) make the sensor side-looking
+    (:mod:`covergrid.compute.side_events`), which needs ``vel_km_s`` in both modes.
     """
     st = state
     pos = np.ascontiguousarray(pos_km, dtype=np.float64)
-    if refine:
+    side_looking = min_off_nadir_rad > 0.0 or look_side != 0
+    if refine or side_looking:
         if vel_km_s is None:
-            raise ValueError("refine needs the satellites' velocities (vel_km_s)")
+            raise ValueError("refine and a side-looking sensor need the satellites' "
+                             "velocities (vel_km_s)")
         vel = np.ascontiguousarray(vel_km_s, dtype=np.float64)
     else:
         vel = np.zeros((1, 1, 3))
@@ -352,7 +379,8 @@ def run_band(state: dict[str, np.ndarray], pos_km: np.ndarray, i0: int,
             st["heads"], st["events"], st["rows_prev"], st["prev_rows"], st["bound_cache"],
             st["prev_pos"], st["visits"],
             np.zeros((0, 3)) if sun_km is None else np.ascontiguousarray(sun_km, np.float64),
-            st["prev_sun"], math.sin(min_sun_elevation_rad))
+            st["prev_sun"], math.sin(min_sun_elevation_rad), float(min_off_nadir_rad),
+            int(look_side))
 
 
 def close_band(state: dict[str, np.ndarray], t_end: float) -> None:

@@ -12,7 +12,17 @@ from dataclasses import dataclass
 
 from covergrid.errors import CovergridError
 
-__all__ = ["Sensor"]
+__all__ = ["LOOK_SIDES", "Sensor", "is_side_looking"]
+
+#: Which side of the ground track a side-looking sensor sees, and its sign in the kernel:
+#: +1 left of the Earth-fixed velocity (n . p >= 0 with n = r x v), -1 right, 0 both.
+LOOK_SIDES = {"left": 1, "right": -1, "both": 0}
+
+
+def is_side_looking(min_off_nadir_deg: float | None, look_side: str) -> bool:
+    """Whether limits see an off-nadir annulus or one side of the track only (the one rule,
+    for :class:`Sensor` and the study's checks alike)."""
+    return min_off_nadir_deg is not None or look_side != "both"
 
 
 @dataclass(frozen=True)
@@ -33,12 +43,23 @@ class Sensor:
         Daylight: the cell counts as seen only while the Sun's centre is at least this high
         above its horizon [deg], in (-90, 90) (:mod:`covergrid.compute.daylight`); None: day
         and night alike.
+    min_off_nadir_deg : float or None
+        Side-looking sensor: the inner edge of an off-nadir annulus [deg], in (0, 90) and
+        below ``max_off_nadir_deg`` when that is given; a cell is seen only at an off-nadir
+        angle of at least this much. None: no inner limit.
+    look_side : str
+        ``"left"``, ``"right"`` or ``"both"`` (default): the side of the satellite's
+        Earth-fixed velocity on which cells are seen (the half-space bounded by the plane
+        through the Earth's centre holding the satellite's position and Earth-fixed
+        velocity; a cell on that plane counts for both sides).
     """
 
     min_elevation_deg: float = 10.0
     max_off_nadir_deg: float | None = None
     max_range_km: float | None = None
     min_sun_elevation_deg: float | None = None
+    min_off_nadir_deg: float | None = None
+    look_side: str = "both"
 
     def __post_init__(self) -> None:
         e = self.min_elevation_deg
@@ -57,6 +78,23 @@ class Sensor:
         if h is not None and not (math.isfinite(h) and -90.0 < h < 90.0):
             raise CovergridError(f"{h!r} deg is not allowed; use (-90, 90) or leave it out",
                                  "sensor.min_sun_elevation_deg")
+        m = self.min_off_nadir_deg
+        if m is not None:
+            if not (math.isfinite(m) and 0.0 < m < 90.0):
+                raise CovergridError(f"{m!r} deg is not allowed; use (0, 90) or leave it out",
+                                     "sensor.min_off_nadir_deg")
+            if o is not None and m >= o:
+                raise CovergridError(f"{m!r} deg is not allowed; use less than "
+                                     f"max_off_nadir_deg = {o!r} deg",
+                                     "sensor.min_off_nadir_deg")
+        if self.look_side not in LOOK_SIDES:
+            raise CovergridError(f"{self.look_side!r} is not allowed; use one of "
+                                 f"{', '.join(LOOK_SIDES)}", "sensor.look_side")
+
+    @property
+    def side_looking(self) -> bool:
+        """Whether the sensor sees an off-nadir annulus or one side of the track only."""
+        return is_side_looking(self.min_off_nadir_deg, self.look_side)
 
     def kernel_args(self) -> tuple[float, float, float]:
         """(el_min_rad, eta_max_rad or 0, range_max_km or 0) as the kernel takes them."""
@@ -65,3 +103,8 @@ class Sensor:
             math.radians(self.max_off_nadir_deg) if self.max_off_nadir_deg else 0.0,
             float(self.max_range_km) if self.max_range_km else 0.0,
         )
+
+    def side_args(self) -> tuple[float, int]:
+        """(eta_min_rad or 0, side) as the kernel takes them (side: :data:`LOOK_SIDES`)."""
+        return (math.radians(self.min_off_nadir_deg) if self.min_off_nadir_deg else 0.0,
+                LOOK_SIDES[self.look_side])

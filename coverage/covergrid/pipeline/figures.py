@@ -87,6 +87,8 @@ def study_caption(study: ResolvedStudy) -> str:
     info: dict[str, Any] = {
         "min_elevation_deg": s.min_elevation_deg,
         "max_off_nadir_deg": s.max_off_nadir_deg,
+        "min_off_nadir_deg": s.min_off_nadir_deg,
+        "look_side": s.look_side,
         "max_range_km": s.max_range_km,
         "duration_h": study.duration_s / 3600.0, "step_s": study.step_s,
         "epoch": study.epoch_iso,

@@ -47,7 +47,8 @@ if TYPE_CHECKING:
     from covergrid.study.build import ComputeOptions, ResolvedStudy
     from covergrid.study.models import Study
 
-__all__ = ["KERNEL_S_PER_CELL", "KERNEL_S_PER_SATELLITE_SAMPLE_ROW",
+__all__ = ["KERNEL_S_PER_CELL", "KERNEL_S_PER_SATELLITE_SAMPLE_ROW", "KERNEL_S_PER_SIDE_CELL",
+           "KERNEL_S_PER_SIDE_CELL_SAMPLED",
            "KERNEL_VISITS_PER_S_PER_CORE", "MAX_SAMPLES",
            "MAX_SATELLITE_SAMPLES", "OUTPUT_BYTES_PER_CELL", "available_memory_bytes",
            "check_resources", "check_trade_resources", "concurrency", "estimate",
@@ -77,6 +78,13 @@ KERNEL_VISITS_PER_S_PER_CORE = 9.0e8
 KERNEL_S_PER_SATELLITE_SAMPLE_ROW = 1.3e-7
 #: Kernel time per cell whatever is seen (state set-up, finishing, the Dataset) [s].
 KERNEL_S_PER_CELL = 2.7e-6
+#: Kernel time per satellite, sample and cell of its reach for a side-looking sensor [s],
+#: in continuous time and sampled: every cell inside the outer footprint is tested each
+#: sample (compute/side_events.py). Measured as the difference between the radar example's
+#: constellation (configs/radar_marram.yaml, global 1 deg grid, 24 h at 30 s) and the same
+#: with a plain 45 deg cone, per estimated visit, one core, synchronous: 120 ns and 12 ns.
+KERNEL_S_PER_SIDE_CELL = 1.2e-7
+KERNEL_S_PER_SIDE_CELL_SAMPLED = 1.2e-8
 #: Time to draw and save a metric map (PNG and PDF) besides its cells, and any other
 #: figure [s], and per cell of a map [s]: measured 3 to 5 s a map on 1 and 0.25 deg grids
 #: and 0.5 s a figure on a 10 deg grid, on the shared development machine, with the render
@@ -199,10 +207,16 @@ def _footprint_rows(a_km, sensor: Sensor, study: ResolvedStudy) -> np.ndarray:
                       study.grid.cropped().n_lat)
 
 
-def _kernel_s(visits: float, row_samples: float, cells: float) -> float:
-    """One core's kernel time for the work counted [s] (see the calibration notes)."""
+def _kernel_s(visits: float, row_samples: float, cells: float,
+              sensor: Sensor | None = None, refine: bool = True) -> float:
+    """One core's kernel time for the work counted [s] (see the calibration notes); a
+    side-looking ``sensor`` tests every cell of its reach, about the visits of its outer
+    footprint, each sample."""
+    side = 0.0
+    if sensor is not None and sensor.side_looking:
+        side = visits * (KERNEL_S_PER_SIDE_CELL if refine else KERNEL_S_PER_SIDE_CELL_SAMPLED)
     return (visits / KERNEL_VISITS_PER_S_PER_CORE + row_samples * KERNEL_S_PER_SATELLITE_SAMPLE_ROW
-            + cells * KERNEL_S_PER_CELL)
+            + cells * KERNEL_S_PER_CELL + side)
 
 
 def _band_share(study: ResolvedStudy) -> float:
@@ -328,7 +342,8 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     }
     memory = sum(parts.values())
     row_samples = float(np.sum(_footprint_rows(elements.a_km, study.sensor, study))) * n_steps
-    compute_s = _kernel_s(visits, row_samples, cells) / running
+    compute_s = _kernel_s(visits, row_samples, cells, study.sensor,
+                          study.refine_transitions) / running
     n_maps = _map_count(study) if maps else 0
     figures_s = (n_maps * (MAP_S + cells * MAP_S_PER_CELL) + 2 * FIGURE_S) if maps else 0.0
     available = available_memory_bytes()
@@ -524,7 +539,8 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         "workers": processes * WORKER_PROCESS_BYTES,
         "rows": evaluations * columns * ROW_VALUE_BYTES,
     }
-    seconds = _kernel_s(visits, row_samples, evaluations * cells) / tasks
+    seconds = _kernel_s(visits, row_samples, evaluations * cells, study.sensor,
+                        study.refine_transitions) / tasks
     available = available_memory_bytes()
     limit = (int(study.compute.memory_limit_gb * 1e9) if study.compute.memory_limit_gb
              else available)

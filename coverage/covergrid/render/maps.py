@@ -449,6 +449,7 @@ def save_metric_maps(ds, metrics: Iterable[str], out_dir, *, caption: str | None
 _CAPTION_KEYS = {
     "pattern", "total", "planes", "phasing", "altitude_km", "inclination_deg",
     "min_elevation_deg", "max_off_nadir_deg", "max_range_km", "duration_h", "step_s", "epoch",
+    "min_off_nadir_deg", "look_side",
 }
 
 
@@ -466,7 +467,8 @@ def design_caption(study_like: Mapping) -> str:
         Plain dict with any of: ``pattern`` ("delta" or "star"), ``total``, ``planes``,
         ``phasing`` (Walker T/P/F), ``altitude_km``, ``inclination_deg``, ``min_elevation_deg``,
         ``max_off_nadir_deg``, ``max_range_km``, ``duration_h``, ``step_s``, ``epoch`` (ISO text
-        or datetime64). Missing or None entries are left out.
+        or datetime64), ``min_off_nadir_deg`` and ``look_side`` (a side-looking sensor:
+        "left", "right" or "both"). Missing or None entries are left out.
 
     Returns
     -------
@@ -509,8 +511,12 @@ def design_caption(study_like: Mapping) -> str:
     sensor = []
     if "min_elevation_deg" in s:
         sensor.append(f"minimum elevation {_fmt(s['min_elevation_deg'])}\u00b0")
+    if "min_off_nadir_deg" in s and np.isfinite(float(s["min_off_nadir_deg"])):
+        sensor.append(f"minimum off-nadir {_fmt(s['min_off_nadir_deg'])}\u00b0")
     if "max_off_nadir_deg" in s and np.isfinite(float(s["max_off_nadir_deg"])):
         sensor.append(f"maximum off-nadir {_fmt(s['max_off_nadir_deg'])}\u00b0")
+    if s.get("look_side") in ("left", "right"):
+        sensor.append(f"looking {s['look_side']} of the track")
     if "max_range_km" in s and np.isfinite(float(s["max_range_km"])):
         sensor.append(f"maximum range {_fmt(s['max_range_km'], 0)} km")
     if sensor:

@@ -10,11 +10,13 @@ them, once, into what the computation takes.
 from __future__ import annotations
 
 import datetime as _dt
+import math
 from typing import Any
 
 import yaml
 from pydantic import Field, field_validator, model_validator
 
+from covergrid.compute.sensor import is_side_looking
 from covergrid.compute.span import count_steps
 from covergrid.constants import WGS84_A_KM
 from covergrid.errors import CovergridError
@@ -174,6 +176,21 @@ class Study(SectionModel):
             problems.append((("targets",), "passes of point targets do not yet apply a "
                              "daylight constraint; leave out sensor.min_sun_elevation_deg or "
                              "targets", None))
+        if self.targets is not None and _side_looking(self.sensor):
+            # the point-target kernel applies the outer limits only
+            problems.append((("targets",), "passes of point targets do not yet apply a "
+                             "side-looking sensor; leave out sensor.min_off_nadir_deg and "
+                             "sensor.look_side, or targets", None))
+        if self.sensor.min_off_nadir_deg is not None and not problems:
+            # the horizon lies at asin(R / r) off nadir, widest from the lowest perigee and
+            # with the equatorial radius: an inner edge beyond it leaves nothing in view
+            lowest = min(_lowest_perigee_altitude_km(g) for g in self.constellation)
+            horizon = math.degrees(math.asin(WGS84_A_KM / (WGS84_A_KM + lowest)))
+            if self.sensor.min_off_nadir_deg >= horizon:
+                problems.append((("sensor", "min_off_nadir_deg"), f"lies beyond the horizon "
+                                 f"seen from the lowest satellite ({horizon:.2f} deg off "
+                                 f"nadir), so nothing would ever be in view; allowed: less "
+                                 f"than {horizon:.2f} deg", self.sensor.min_off_nadir_deg))
         if self.sensor.max_range_km is not None and not problems:
             # every satellite stays at least (perigee radius - equatorial radius) from the
             # ground: a shorter range limit means nothing is ever in view
@@ -245,6 +262,10 @@ def _dop_problems(study: Study) -> list[tuple[tuple, str, Any]]:
             return [(("dop",), "is computed from every satellite in view, day and night; "
                      "leave out sensor.min_sun_elevation_deg (a daylight constraint) or dop",
                      None)]
+        if _side_looking(study.sensor):
+            return [(("dop",), "uses the satellites above the elevation mask (navigation "
+                     "signals), not a side-looking sensor; leave out "
+                     "sensor.min_off_nadir_deg and sensor.look_side, or dop", None)]
         return []
     from covergrid.compute.metrics import DOP_METRICS
 
@@ -255,6 +276,12 @@ def _dop_problems(study: Study) -> list[tuple[tuple, str, Any]]:
              if m in DOP_METRICS]
     return [(where, "is a dilution-of-precision metric: add a dop: section (dop: "
              "{pdop_threshold: 6}) to compute it", m) for where, m in uses]
+
+
+def _side_looking(sensor: SensorSection) -> bool:
+    """Whether the sensor section states a side-looking sensor (an inner off-nadir angle or
+    one side of the track)."""
+    return is_side_looking(sensor.min_off_nadir_deg, sensor.look_side)
 
 
 def _lowest_perigee_altitude_km(group: GroupEntry) -> float:

@@ -528,6 +528,21 @@ class SensorSection(SectionModel):
     min_sun_elevation_deg: float | None = Field(
         None, gt=-90.0, lt=90.0, description="Daylight: a cell counts as seen only while the "
         "Sun is at least this high above its horizon [deg] (optical imaging).")
+    min_off_nadir_deg: float | None = Field(
+        None, gt=0.0, lt=90.0, description="Side-looking sensor: the inner edge of an "
+        "off-nadir annulus [deg]; a cell is seen only at an off-nadir angle of at least this "
+        "much (and at most max_off_nadir_deg).")
+    look_side: Literal["left", "right", "both"] = Field(
+        "both", description="Side of the satellite's Earth-fixed velocity on which cells are "
+        "seen: left, right or both (a radar looking to one side of its ground track).")
+
+    @model_validator(mode="after")
+    def _check(self) -> SensorSection:
+        lo, hi = self.min_off_nadir_deg, self.max_off_nadir_deg
+        if lo is not None and hi is not None and lo >= hi:
+            raise Problems([(("min_off_nadir_deg",), f"must be less than max_off_nadir_deg "
+                              f"= {hi:g}; allowed: 0 < value < {hi:g}", lo)])
+        return self
 
 
 class GridSection(SectionModel):
