@@ -83,7 +83,7 @@ def test_published_sun_synchronous_inclinations_from_a_study():
 def test_highest_sun_synchronous_orbit_is_refused_with_the_published_limit():
     # Wikipedia, "Sun-synchronous orbit", seen: only orbits with a below 12,352 km can be
     # sun-synchronous (circular; i = 180 deg at the limit).
-    from covergrid.study.sections import SUN_SYNCHRONOUS_MAX_A_KM
+    from covergrid.study.orbit_rules import SUN_SYNCHRONOUS_MAX_A_KM
 
     assert SUN_SYNCHRONOUS_MAX_A_KM == pytest.approx(12352.0, abs=HALF_KM)
     assert sun_synchronous_inclination(12351.0) > 178.0 * DEG  # cos i = -1 + 3e-4

@@ -35,12 +35,14 @@ from covergrid.orbits import walker as w
 from covergrid.orbits.element_set import ElementSet
 from covergrid.study.messages import format_path
 from covergrid.study.models import Study
+from covergrid.study.orbit_rules import (
+    SUN_SYNCHRONOUS,
+    sun_synchronous_inclination_deg,
+)
 from covergrid.study.place_sections import TargetRequirementSection
 from covergrid.study.sections import (
-    SUN_SYNCHRONOUS,
     GroupEntry,
     SatelliteEntry,
-    sun_synchronous_inclination_deg,
 )
 from covergrid.study.trade_sections import SizingSection, SweepSection
 

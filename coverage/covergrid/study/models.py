@@ -22,10 +22,14 @@ from covergrid.constants import WGS84_A_KM
 from covergrid.errors import CovergridError
 from covergrid.orbits.walker import count_walker_options
 from covergrid.study.messages import Problems, format_path, reason_of
+from covergrid.study.orbit_rules import (
+    SUN_SYNCHRONOUS,
+    orbit_size_problems,
+    sun_synchronous_inclination_deg,
+)
 from covergrid.study.place_sections import RegionSection, TargetsSection
 from covergrid.study.sections import (
     NAME_RE,
-    SUN_SYNCHRONOUS,
     ComputeSection,
     DopSection,
     GridSection,
@@ -35,8 +39,6 @@ from covergrid.study.sections import (
     RequirementSection,
     SectionModel,
     SensorSection,
-    orbit_size_problems,
-    sun_synchronous_inclination_deg,
     text_id,
 )
 from covergrid.study.trade_sections import (

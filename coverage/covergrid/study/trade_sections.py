@@ -13,7 +13,8 @@ from typing import Annotated, Any, Literal
 from pydantic import Field, WithJsonSchema, field_validator, model_validator
 
 from covergrid.study.messages import Problems, did_you_mean, show_value
-from covergrid.study.sections import SUN_SYNCHRONOUS, Inclination, SectionModel
+from covergrid.study.orbit_rules import SUN_SYNCHRONOUS
+from covergrid.study.sections import Inclination, SectionModel
 
 __all__ = ["SIZING_MAX_DESIGNS", "SWEEP_MAX_DESIGNS", "CoarseSection", "SizingSection",
            "SweepSection", "TotalRange"]
