@@ -9,7 +9,7 @@ import math
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from covergrid.compute.crossings import cubic_range, hermite_crossings
@@ -73,9 +73,15 @@ def test_threshold_separates_the_visible_cells_of_a_row(lat, alt, sat_lat, sat_l
 @given(lat=st.floats(-85.0, 85.0), alt=st.floats(400.0, 20000.0),
        sat_lat=st.floats(-80.0, 80.0), sat_lon=st.floats(-180.0, 180.0),
        vel=st.tuples(*[st.floats(-8.0, 8.0)] * 3), sensor=sensors)
+@example(lat=0.0, alt=973.0, sat_lat=0.0, sat_lon=28.0, vel=(8.0, 8.0, 0.0),
+         sensor=(0.0, 60.0, None))  # a cone nearly as wide as the Earth (see below)
 def test_threshold_rate_is_its_time_derivative(lat, alt, sat_lat, sat_lon, vel, sensor):
-    # central differences of X* along a straight motion r + v t, h = 1e-3 s: truncation
-    # ~ h^2 |X*'''| / 6 and rounding ~ 1e-16 |X*| / h, both far below 1e-6 km/s
+    # central differences of X* along a straight motion r + v t with Richardson's
+    # extrapolation from h = 2e-3 s and 1e-3 s (truncation O(h^4); rounding ~ 1e-16 |X*| / h,
+    # far below 1e-6 km/s). A plain central difference (truncation h^2 |X*'''| / 6) is not
+    # enough where a cone is nearly as wide as the Earth: hypothesis found a 60 deg cone at
+    # 973 km (the Earth's edge at 60.2 deg) where it is off by 7e-6 km/s, while the
+    # extrapolated difference agrees with the closed form to 1e-9 km/s.
     el_deg, cone_deg, range_km = sensor
     lat_r = math.radians(lat)
     rho, zc = _row(lat_r)
@@ -88,10 +94,14 @@ def test_threshold_rate_is_its_time_derivative(lat, alt, sat_lat, sat_lon, vel, 
         r = r0 + v * t
         return row_thresholds(r[0], r[1], r[2], v[0], v[1], v[2], *args, True)
 
-    now, later, earlier = thr(0.0), thr(1e-3), thr(-1e-3)
+    now = thr(0.0)
+    near = (thr(1e-3), thr(-1e-3))
+    far = (thr(2e-3), thr(-2e-3))
     for k in range(3):  # every limit's rate, binding or not
-        if now[2 * k] > NO_LIMIT_KM and later[2 * k] > NO_LIMIT_KM and earlier[2 * k] > NO_LIMIT_KM:
-            fd = (later[2 * k] - earlier[2 * k]) / 2e-3
+        if min(now[2 * k], *(p[2 * k] for p in near + far)) > NO_LIMIT_KM:
+            d1 = (near[0][2 * k] - near[1][2 * k]) / 2e-3
+            d2 = (far[0][2 * k] - far[1][2 * k]) / 4e-3
+            fd = (4.0 * d1 - d2) / 3.0
             assert now[2 * k + 1] == pytest.approx(fd, abs=1e-6, rel=1e-7), k
 
 
