@@ -321,7 +321,8 @@ def figure_helpers(study: ResolvedStudy) -> int:
     None when at most one process may draw (:func:`figure_helpers_at_most`:
     ``compute.scheduler: synchronous``, ``compute.workers: 1``, one usable CPU or fewer than
     2 x :data:`JOBS_PER_PROCESS` figures); otherwise one per CPU left idle by other work (the
-    CPU count less the 1-minute load average, rounded), at least one and at most that bound,
+    CPU count less the 1-minute load average, rounded) and one for the CPU of this process,
+    which draws none; at least one and at most that bound,
     and no more than the memory available holds (:data:`HELPER_BASE_BYTES` plus
     :data:`HELPER_BYTES_PER_CELL` per cell each). This process then draws none: a helper
     imports the drawing libraries and draws the ground tracks while the coverage is
@@ -333,7 +334,7 @@ def figure_helpers(study: ResolvedStudy) -> int:
     at_most = figure_helpers_at_most(study.compute, figure_count(study))
     if at_most == 0:
         return 0
-    n = min(at_most, max(round(_idle_cpus(_usable_cpus())), 1))
+    n = min(at_most, max(round(_idle_cpus(_usable_cpus())) + 1, 1))
     available = available_memory_bytes()
     if available is not None:
         per_helper = HELPER_BASE_BYTES + HELPER_BYTES_PER_CELL * study.grid.n_cells
