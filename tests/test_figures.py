@@ -161,3 +161,19 @@ def test_a_script_without_a_main_guard_draws_with_helpers(tmp_path):
     assert proc.returncode == 0, proc.stderr[-2000:]
     assert proc.stdout.count("ran once") == 1
     assert len(list((tmp_path / "out" / "tiny-ring" / "maps").glob("*.png"))) == 7
+
+
+def test_a_pool_runs_its_preparation_in_every_helper_and_raises_its_error(computed, tmp_path):
+    from covergrid.pipeline.figure_pool import FigurePool
+
+    study, ds = computed
+    job = figures.figure_jobs(study, ds)[0]
+    with FigurePool(2, prepare=figures.prepare_job(study)) as pool:
+        pool.submit([job], tmp_path / "good")
+        assert _names(pool.collect([job]), tmp_path / "good") == ["maps/max_gap.png",
+                                                                  "maps/max_gap.pdf"]
+    broken = figures.FigureJob("drawing set-up", render_maps.prepare_drawing, ("nowhere",))
+    with FigurePool(1, prepare=broken) as pool:
+        pool.submit([job], tmp_path / "bad")
+        with pytest.raises(CovergridError, match="'nowhere' is unknown"):
+            pool.collect([job])

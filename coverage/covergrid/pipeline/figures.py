@@ -47,6 +47,7 @@ __all__ = [
     "figure_helpers",
     "figure_helpers_at_most",
     "figure_processes_at_most",
+    "prepare_job",
     "study_caption",
     "track_job",
     "write_figures",
@@ -212,6 +213,14 @@ def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = No
     jobs.append(FigureJob("latitude profile", profiles.save_latitude_profile, (part, profile),
                           {"caption": caption, **named}, cells))
     return jobs
+
+
+def prepare_job(study: ResolvedStudy) -> FigureJob:
+    """What a helper draws first, while the coverage is computed: an empty map frame in the
+    study's projection, kept nowhere (:func:`covergrid.render.maps.prepare_drawing`)."""
+    from covergrid.render.maps import prepare_drawing
+
+    return FigureJob("drawing set-up", prepare_drawing, (study.maps.projection,))
 
 
 def track_job(study: ResolvedStudy) -> FigureJob:

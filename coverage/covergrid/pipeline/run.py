@@ -291,19 +291,20 @@ def run_study(study: Study | ResolvedStudy, out_dir: str | Path | None = None, *
 @contextlib.contextmanager
 def _figure_pool(resolved: ResolvedStudy, maps: bool):
     """The helper processes drawing a run's figures, started before computing so that
-    they import the drawing libraries meanwhile; None when this process draws them
-    (:func:`covergrid.pipeline.figures.figure_helpers`) or no figure is drawn."""
+    they import the drawing libraries and draw an empty map frame meanwhile; None when
+    this process draws them (:func:`covergrid.pipeline.figures.figure_helpers`) or no
+    figure is drawn."""
     if not maps:
         yield None
         return
     from covergrid.pipeline.figure_pool import FigurePool
-    from covergrid.pipeline.figures import figure_helpers
+    from covergrid.pipeline.figures import figure_helpers, prepare_job
 
     helpers = figure_helpers(resolved)
     if helpers == 0:
         yield None
         return
-    with FigurePool(helpers) as pool:
+    with FigurePool(helpers, prepare=prepare_job(resolved)) as pool:
         yield pool
 
 
