@@ -72,9 +72,10 @@ def test_an_error_in_a_helper_is_raised_here(computed, tmp_path):
         figures.draw_figures([good, bad], tmp_path, workers=2)
 
 
-def test_how_many_processes_draw(computed, monkeypatch):
+def test_how_many_helpers_a_run_starts(computed, monkeypatch):
     study, ds = computed
-    jobs = figures.figure_jobs(study, ds)
+    n_jobs = len(figures.figure_jobs(study, ds))
+    assert figures.figure_count(study) == n_jobs
     import dataclasses
 
     from covergrid.pipeline import resources
@@ -82,22 +83,64 @@ def test_how_many_processes_draw(computed, monkeypatch):
     monkeypatch.setattr(figures, "_usable_cpus", lambda: 8)
     monkeypatch.setattr(figures, "_idle_cpus", lambda cpus: cpus - 0.3)
     monkeypatch.setattr(resources, "available_memory_bytes", lambda: 64 * 2**30)
-    assert figures.figure_workers(study, jobs) == min(8, len(jobs) // figures.JOBS_PER_PROCESS)
-    # other work keeps 7 of the 8 CPUs busy: only this process draws
+    assert figures.figure_helpers(study) == min(8, n_jobs // figures.JOBS_PER_PROCESS)
+    # other work keeps 7 of the 8 CPUs busy: a helper for the idle one and one for the CPU
+    # of this process (which draws none); on a machine busier still, one helper takes the
+    # figures off the path of this process (it draws the ground tracks while this computes)
     monkeypatch.setattr(figures, "_idle_cpus", lambda cpus: 1.2)
-    assert figures.figure_workers(study, jobs) == 1
+    assert figures.figure_helpers(study) == 2
+    monkeypatch.setattr(figures, "_idle_cpus", lambda cpus: -3.0)
+    assert figures.figure_helpers(study) == 1
     monkeypatch.setattr(figures, "_idle_cpus", lambda cpus: cpus - 0.3)
 
     def with_compute(**kw):
         return dataclasses.replace(study, compute=dataclasses.replace(study.compute, **kw))
 
-    assert figures.figure_workers(with_compute(scheduler="synchronous"), jobs) == 1
-    assert figures.figure_workers(with_compute(workers=1), jobs) == 1
-    assert figures.figure_workers(study, jobs[:1]) == 1
-    # memory for this process's drawing and no helper
+    # nothing but this process may draw: no helper
+    assert figures.figure_helpers(with_compute(scheduler="synchronous")) == 0
+    assert figures.figure_helpers(with_compute(workers=1)) == 0
+    monkeypatch.setattr(figures, "_usable_cpus", lambda: 1)
+    assert figures.figure_helpers(study) == 0
+    monkeypatch.setattr(figures, "_usable_cpus", lambda: 8)
+    # memory for no helper: this process draws
     monkeypatch.setattr(resources, "available_memory_bytes",
                         lambda: figures.HELPER_BASE_BYTES)
-    assert figures.figure_workers(study, jobs) == 1
+    assert figures.figure_helpers(study) == 0
+
+
+def test_a_run_with_helpers_writes_what_a_run_without_writes(computed, tmp_path, monkeypatch):
+    study, _ = computed
+    monkeypatch.setattr(figures, "figure_helpers", lambda study: 0)
+    here = run_study(study, tmp_path / "here").files
+    monkeypatch.setattr(figures, "figure_helpers", lambda study: 2)
+    shared = run_study(study, tmp_path / "shared").files
+    assert _names(here, tmp_path / "here") == _names(shared, tmp_path / "shared")
+    for a, b in zip(here, shared, strict=True):
+        if a.suffix == ".png":
+            with Image.open(a) as ia, Image.open(b) as ib:
+                assert np.array_equal(np.asarray(ia), np.asarray(ib)), a.name
+
+
+def test_a_pool_raises_the_error_of_a_job_and_leaves_no_helper(computed, tmp_path):
+    from covergrid.pipeline.figure_pool import FigurePool
+
+    study, ds = computed
+    good = figures.figure_jobs(study, ds)[0]
+    bad = figures.FigureJob("map nonsense", render_maps.save_metric_maps, (ds, ["nonsense"]),
+                            {"caption": None})
+    with FigurePool(1) as pool:
+        procs = [h.proc for h in pool._helpers]
+        pool.submit([good], tmp_path)
+        pool.submit([good, bad], tmp_path)  # the same job is not queued twice
+        assert len(pool._queue) <= 2
+        with pytest.raises(CovergridError, match="'nonsense' is not in the Dataset"):
+            pool.collect([good, bad])
+    assert all(p.poll() is not None for p in procs)
+    # an exception in the block (an interrupt while computing) stops the helpers too
+    with pytest.raises(KeyboardInterrupt), FigurePool(1) as pool:
+        procs = [h.proc for h in pool._helpers]
+        raise KeyboardInterrupt
+    assert all(p.poll() is not None for p in procs)
 
 
 @pytest.mark.slow
@@ -110,7 +153,7 @@ def test_a_script_without_a_main_guard_draws_with_helpers(tmp_path):
     script.write_text(
         "import covergrid\n"
         "from covergrid.pipeline import figures\n"
-        "figures.figure_workers = lambda study, jobs: 2\n"
+        "figures.figure_helpers = lambda study: 2\n"
         f"covergrid.run({str(study)!r}, out_dir={str(tmp_path / 'out')!r})\n"
         "print('ran once')\n", encoding="utf-8")
     proc = subprocess.run([sys.executable, str(script)], capture_output=True, text=True,
@@ -118,3 +161,19 @@ def test_a_script_without_a_main_guard_draws_with_helpers(tmp_path):
     assert proc.returncode == 0, proc.stderr[-2000:]
     assert proc.stdout.count("ran once") == 1
     assert len(list((tmp_path / "out" / "tiny-ring" / "maps").glob("*.png"))) == 7
+
+
+def test_a_pool_runs_its_preparation_in_every_helper_and_raises_its_error(computed, tmp_path):
+    from covergrid.pipeline.figure_pool import FigurePool
+
+    study, ds = computed
+    job = figures.figure_jobs(study, ds)[0]
+    with FigurePool(2, prepare=figures.prepare_job(study)) as pool:
+        pool.submit([job], tmp_path / "good")
+        assert _names(pool.collect([job]), tmp_path / "good") == ["maps/max_gap.png",
+                                                                  "maps/max_gap.pdf"]
+    broken = figures.FigureJob("drawing set-up", render_maps.prepare_drawing, ("nowhere",))
+    with FigurePool(1, prepare=broken) as pool:
+        pool.submit([job], tmp_path / "bad")
+        with pytest.raises(CovergridError, match="'nowhere' is unknown"):
+            pool.collect([job])

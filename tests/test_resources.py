@@ -23,7 +23,8 @@ from covergrid.pipeline.figures import (
     HELPER_BYTES_PER_CELL,
     MAX_TRACKS,
     TRACK_SAMPLES,
-    figure_processes_at_most,
+    figure_count,
+    figure_helpers_at_most,
 )
 from covergrid.study import load_study, parse_study, resolve
 from covergrid.trade.evaluate import row_columns
@@ -43,7 +44,7 @@ def test_the_parts_add_up_and_maps_add_the_figures(tmp_path):
     assert with_maps["memory_bytes"] == sum(with_maps["memory_parts"].values())
     assert without["memory_parts"]["figures"] == 0 and without["figures_s"] == 0.0
     n, cells = with_maps["satellites"], with_maps["cells"]
-    helpers = figure_processes_at_most(study.compute, resources._map_count(study) + 2) - 1
+    helpers = figure_helpers_at_most(study.compute, figure_count(study))
     assert with_maps["memory_parts"]["figures"] == (
         min(n, MAX_TRACKS) * TRACK_SAMPLES * resources.TRACK_BYTES_PER_SAMPLE
         + n * resources.PLANE_BYTES_PER_SATELLITE + cells * HELPER_BYTES_PER_CELL

@@ -19,6 +19,7 @@ import argparse
 import dataclasses
 import json
 import math
+import os
 import signal
 import sys
 import threading
@@ -611,5 +612,23 @@ def _cmd_schema() -> int:
     return EXIT_OK
 
 
+def command() -> None:
+    """The ``covergrid`` program: :func:`main`, then the process ends at once with its status.
+
+    Every output is written and closed (atomically) before :func:`main` returns, so the
+    interpreter's teardown (finalising numba, llvmlite, xarray, dask: 0.3-0.6 s measured
+    after a run, about a tenth of a whole study) is skipped with ``os._exit`` once the
+    standard streams are flushed. Callers of :func:`main` in a program of their own keep
+    their interpreter.
+    """
+    code = main()
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.flush()
+        except (OSError, ValueError):  # a closed pipe: nothing more can be said
+            pass
+    os._exit(code)
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    command()

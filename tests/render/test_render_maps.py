@@ -280,3 +280,11 @@ def test_uniform_duration_scale_stays_non_negative():
         assert mesh.norm.vmin == 0.0 and mesh.norm.vmax > 0.0
     finally:
         plt.close(mesh.axes.figure)
+
+
+def test_preparing_the_drawing_writes_nothing_and_leaves_no_figure(tmp_path):
+    # run by each figure helper before its first job (the fixture checks no figure is open)
+    assert maps.prepare_drawing("robinson", tmp_path) == []
+    assert list(tmp_path.iterdir()) == []
+    with pytest.raises(CovergridError, match="unknown"):
+        maps.prepare_drawing("no_such_projection")

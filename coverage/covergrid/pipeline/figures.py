@@ -3,11 +3,14 @@
 :func:`study_caption` states the design, the sensor limits and the span. :func:`figure_jobs`
 lists the figures of a computed study: one job per metric map (and per fold of
 ``nfold_fraction``), the ground tracks and the latitude profile, each holding only the data it
-draws. :func:`draw_figures` draws them: this process and up to ``workers - 1`` helper
-processes take jobs from one queue (:func:`figure_workers` says how many: at most the CPUs
-this process may use, ``compute.workers`` when the study sets it, and what the memory
-available allows; ``compute.scheduler: synchronous`` draws everything here, one after the
-other). :func:`write_figures` does both.
+draws (:func:`track_job`, the ground tracks, needs no coverage). :func:`draw_figures` draws
+jobs in this process and up to ``workers - 1`` helper processes taking them from one queue
+(:class:`~covergrid.pipeline.figure_pool.FigurePool`). A run starts its helpers before
+computing (:func:`figure_helpers` says how many: at most the CPUs this process may use and
+other work leaves idle, ``compute.workers`` when the study sets it, and what the memory
+available allows; none with ``compute.scheduler: synchronous``, which draws everything here,
+one after the other), gives them the ground tracks at once and the other figures when the
+coverage is known. :func:`write_figures` lists and draws the figures of a computed study.
 
 Every job writes its PNG and PDF atomically into the folder it is given
 (:func:`covergrid.render.style.save_png_and_pdf`) and nowhere else. Figures are drawn on this
@@ -17,16 +20,8 @@ folder.
 
 from __future__ import annotations
 
-import collections
-import contextlib
 import math
 import os
-import pickle
-import signal
-import struct
-import subprocess
-import sys
-import threading
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -48,10 +43,13 @@ __all__ = [
     "FigureJob",
     "draw_figures",
     "figure_jobs",
+    "figure_count",
+    "figure_helpers",
+    "figure_helpers_at_most",
     "figure_processes_at_most",
-    "figure_workers",
-    "serve_figure_jobs",
+    "prepare_job",
     "study_caption",
+    "track_job",
     "write_figures",
 ]
 
@@ -150,8 +148,8 @@ def shapely_wkb(geometry: Any) -> bytes:
     return bytes(shapely.to_wkb(geometry))
 
 
-def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = None
-                ) -> list[FigureJob]:
+def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = None, *,
+                tracks: FigureJob | None = None) -> list[FigureJob]:
     """The figures a study asks for, from its coverage Dataset, in the order of their files.
 
     One job per metric of ``maps.metrics`` (per fold ``k`` for ``nfold_fraction``), then the
@@ -167,14 +165,8 @@ def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = No
         A ValueError subclass: a metric the Dataset does not hold, or an unknown projection
         (raised before anything is drawn).
     """
-    from covergrid.render import (
-        ground_track,
-        plane_numbers,
-        profiles,
-        save_ground_tracks,
-        track_selection,
-    )
     from covergrid.render import maps as render_maps
+    from covergrid.render import profiles
     from covergrid.render.marks import requirement_mark
 
     caption = study_caption(study)
@@ -214,24 +206,7 @@ def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = No
                 {"caption": caption, "projection": study.maps.projection, "k": fold,
                  **named}, cells))
 
-    elements = study.elements
-    period_s = float(np.max(2 * math.pi * np.sqrt(np.asarray(elements.a_km) ** 3
-                                                   / MU_EARTH_KM3_S2)))
-    shown_s = min(period_s, study.duration_s)
-    t_s = np.linspace(0.0, shown_s, TRACK_SAMPLES)
-    # only the satellites drawn are propagated (at most MAX_TRACKS, every plane kept)
-    planes = plane_numbers(elements)
-    shown = track_selection(planes, MAX_TRACKS)
-    drawn = elements if shown.size == len(elements) else elements.subset(shown)
-    lat, lon = ground_track(drawn, study.epoch, t_s)
-    title = (f"Ground tracks over the first {shown_s / 60:.0f} min"
-             + (" (one orbit)" if shown_s < study.duration_s else "")
-             + (f" ({shown.size} of {len(elements)} satellites)"
-                if shown.size < len(elements) else ""))
-    jobs.append(FigureJob("ground tracks", save_ground_tracks, (lat, lon),
-                          {"caption": caption, "title": title, "ids": drawn.ids,
-                           "planes": planes[shown], "max_sats": MAX_TRACKS,
-                           "projection": study.maps.projection, "study": study.name}))
+    jobs.append(track_job(study) if tracks is None else tracks)
 
     profile = [m for m in metrics if m != "nfold_fraction"][:4] or ["coverage_fraction"]
     for metric in profile:
@@ -240,6 +215,40 @@ def figure_jobs(study: ResolvedStudy, ds, verdict: Mapping[str, Any] | None = No
     jobs.append(FigureJob("latitude profile", profiles.save_latitude_profile, (part, profile),
                           {"caption": caption, **named}, cells))
     return jobs
+
+
+def prepare_job(study: ResolvedStudy) -> FigureJob:
+    """What a helper draws first, while the coverage is computed: an empty map frame in the
+    study's projection, kept nowhere (:func:`covergrid.render.maps.prepare_drawing`)."""
+    from covergrid.render.maps import prepare_drawing
+
+    return FigureJob("drawing set-up", prepare_drawing, (study.maps.projection,))
+
+
+def track_job(study: ResolvedStudy) -> FigureJob:
+    """The ground-track figure of a study; it needs no coverage, so a run draws it while the
+    coverage is computed. At most :data:`MAX_TRACKS` satellites (spread over the planes,
+    only those propagated) over one orbit of the slowest one, at most the span, in the maps'
+    projection."""
+    from covergrid.render import ground_track, plane_numbers, save_ground_tracks, track_selection
+
+    elements = study.elements
+    period_s = float(np.max(2 * math.pi * np.sqrt(np.asarray(elements.a_km) ** 3
+                                                   / MU_EARTH_KM3_S2)))
+    shown_s = min(period_s, study.duration_s)
+    t_s = np.linspace(0.0, shown_s, TRACK_SAMPLES)
+    planes = plane_numbers(elements)
+    shown = track_selection(planes, MAX_TRACKS)
+    drawn = elements if shown.size == len(elements) else elements.subset(shown)
+    lat, lon = ground_track(drawn, study.epoch, t_s)
+    title = (f"Ground tracks over the first {shown_s / 60:.0f} min"
+             + (" (one orbit)" if shown_s < study.duration_s else "")
+             + (f" ({shown.size} of {len(elements)} satellites)"
+                if shown.size < len(elements) else ""))
+    return FigureJob("ground tracks", save_ground_tracks, (lat, lon),
+                     {"caption": study_caption(study), "title": title, "ids": drawn.ids,
+                      "planes": planes[shown], "max_sats": MAX_TRACKS,
+                      "projection": study.maps.projection, "study": study.name})
 
 
 def _usable_cpus() -> int:
@@ -260,7 +269,7 @@ def _idle_cpus(cpus: int) -> float:
 def figure_processes_at_most(compute: ComputeOptions, n_jobs: int) -> int:
     """The most processes that may draw ``n_jobs`` figures (this one included): one per
     :data:`JOBS_PER_PROCESS` jobs, per usable CPU and at most ``compute.workers``; 1 with
-    ``compute.scheduler: synchronous``. The memory estimate counts this many."""
+    ``compute.scheduler: synchronous``."""
     if compute.scheduler == "synchronous" or n_jobs <= 1:
         return 1
     n = min(n_jobs // JOBS_PER_PROCESS, _usable_cpus())
@@ -269,128 +278,15 @@ def figure_processes_at_most(compute: ComputeOptions, n_jobs: int) -> int:
     return max(n, 1)
 
 
-def figure_workers(study: ResolvedStudy, jobs: Sequence[FigureJob]) -> int:
-    """How many processes draw the figures: this one plus the helpers (at least 1).
-
-    At most one per :data:`JOBS_PER_PROCESS` jobs, one per CPU this process may use, and
-    one per CPU left idle by other work (the CPU count less the 1-minute load average,
-    rounded: on a busy machine a helper would only take time from this process); at most
-    ``compute.workers`` when the study sets it; 1 with ``compute.scheduler: synchronous``;
-    and no more helpers than the memory available holds (:data:`HELPER_BASE_BYTES` plus
-    :data:`HELPER_BYTES_PER_CELL` per cell each).
-    """
-    from covergrid.pipeline.resources import available_memory_bytes
-
-    n = min(figure_processes_at_most(study.compute, len(jobs)),
-            round(_idle_cpus(_usable_cpus())))
-    available = available_memory_bytes()
-    if available is not None:
-        per_helper = HELPER_BASE_BYTES + HELPER_BYTES_PER_CELL * max(j.cells for j in jobs)
-        n = min(n, 1 + int(available // per_helper))
-    return max(n, 1)
-
-
-def _send(stream, obj: Any) -> None:
-    data = pickle.dumps(obj, protocol=pickle.HIGHEST_PROTOCOL)
-    stream.write(struct.pack("<Q", len(data)))
-    stream.write(data)
-    stream.flush()
-
-
-def _receive(stream) -> Any:
-    head = stream.read(8)
-    if len(head) < 8:
-        raise EOFError("the other end closed the pipe")
-    (size,) = struct.unpack("<Q", head)
-    return pickle.loads(stream.read(size))
-
-
-def serve_figure_jobs() -> None:
-    """The loop of a helper process: draw each job sent on stdin, answer on stdout.
-
-    Started by :func:`draw_figures` as ``python -c`` (a fresh interpreter that imports nothing
-    of the caller's program, so a script calling :func:`covergrid.run` needs no
-    ``if __name__ == "__main__"`` guard). Messages are pickles, each preceded by its length;
-    an answer is ``("done", paths)`` or ``("error", exception)``. Anything the drawing code
-    prints goes to stderr. Ends when stdin closes.
-    """
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import covergrid.render  # noqa: F401  (matplotlib, cartopy and the bundled coast)
-
-    answers = os.fdopen(os.dup(1), "wb")
-    os.dup2(2, 1)  # stray prints must not corrupt the answers
-    jobs = sys.stdin.buffer
-    try:
-        while True:
-            try:
-                job, folder = _receive(jobs)
-            except EOFError:
-                return
-            try:
-                answer: tuple[str, Any] = ("done", job.run(folder))
-            except Exception as exc:  # sent back and raised by the caller
-                answer = ("error", exc)
-            try:
-                _send(answers, answer)
-            except (pickle.PicklingError, TypeError, AttributeError):
-                _send(answers, ("error", RuntimeError(f"{job.name}: {answer[1]!r}")))
-    except KeyboardInterrupt:  # the caller was interrupted; the partial file is gone
-        return
-
-
-class _Helper:
-    """One helper process drawing figure jobs (see :func:`serve_figure_jobs`)."""
-
-    def __init__(self) -> None:
-        self.proc = subprocess.Popen(
-            [sys.executable, "-c",
-             "from covergrid.pipeline.figures import serve_figure_jobs; serve_figure_jobs()"],
-            stdin=subprocess.PIPE, stdout=subprocess.PIPE)
-
-    def run(self, job: FigureJob, folder: Path) -> list[Path]:
-        assert self.proc.stdin is not None and self.proc.stdout is not None
-        try:
-            _send(self.proc.stdin, (job, folder))
-            kind, value = _receive(self.proc.stdout)
-        except (EOFError, BrokenPipeError):
-            code = self.proc.wait()
-            raise RuntimeError(f"the process drawing the {job.name} figure ended "
-                               f"(exit status {code})") from None
-        if kind == "error":
-            raise value
-        return value
-
-    def close(self, interrupt: bool) -> None:
-        """Let the helper end (after an interrupt, stop its drawing first)."""
-        if interrupt and self.proc.poll() is None:
-            self.proc.send_signal(signal.SIGINT)  # its files are removed as it unwinds
-        with contextlib.suppress(OSError):
-            assert self.proc.stdin is not None
-            self.proc.stdin.close()
-        try:
-            self.proc.wait(timeout=_HELPER_EXIT_S)
-        except subprocess.TimeoutExpired:
-            self.proc.kill()
-            self.proc.wait()
-        if self.proc.stdout is not None:
-            self.proc.stdout.close()
-
-
-#: How long a helper may take to end once asked [s] (a figure takes well under a second).
-_HELPER_EXIT_S = 30.0
-
-
 def draw_figures(jobs: Sequence[FigureJob], folder: str | os.PathLike, *,
                  workers: int = 1) -> list[Path]:
     """Draw figure jobs into ``folder``, concurrently when ``workers`` > 1.
 
     This process takes jobs from the front of the queue while ``workers - 1`` helper
-    processes (fresh interpreters, :func:`serve_figure_jobs`) take them from the back, so no
-    core waits while a helper starts; the files come back in the order of the jobs. If a job
-    fails, no new job starts, and the first error is raised once the jobs already running
-    have ended.
+    processes (:class:`~covergrid.pipeline.figure_pool.FigurePool`) take them from the back,
+    so no core waits while a helper starts; the files come back in the order of the jobs. If
+    a job fails, no new job starts, and the first error is raised once the jobs already
+    running have ended.
 
     Parameters
     ----------
@@ -399,73 +295,75 @@ def draw_figures(jobs: Sequence[FigureJob], folder: str | os.PathLike, *,
     folder : path-like
         The study's output folder; every file is written inside it.
     workers : int
-        Processes drawing at once, this one included (:func:`figure_workers`).
+        Processes drawing at once, this one included.
 
     Returns
     -------
     list of pathlib.Path
         Every file written, in the order of the jobs.
     """
-    folder = Path(os.fspath(folder)).absolute()
+    from covergrid.pipeline.figure_pool import FigurePool
+
     jobs = list(jobs)
-    n_helpers = min(int(workers), len(jobs)) - 1
-    if n_helpers <= 0:
-        return [p for job in jobs for p in job.run(folder)]
+    with FigurePool(min(int(workers), len(jobs)) - 1) as pool:
+        pool.submit(jobs, folder)
+        return pool.collect(jobs, here=True)
 
-    results: list[list[Path]] = [[] for _ in jobs]
-    queue = collections.deque(range(len(jobs)))
-    lock = threading.Lock()
-    errors: list[BaseException] = []
 
-    def take(front: bool) -> int | None:
-        with lock:
-            if not queue or errors:
-                return None
-            return queue.popleft() if front else queue.pop()
+def figure_count(study: ResolvedStudy) -> int:
+    """Figures a run of the study draws: one map per metric (per fold for
+    ``nfold_fraction``), the ground tracks and the latitude profile."""
+    return sum(study.nfold_max if m == "nfold_fraction" else 1
+               for m in study.maps.metrics) + 2
 
-    def fail(exc: BaseException) -> None:
-        with lock:
-            errors.append(exc)
-            queue.clear()
 
-    def keep_busy(helper: _Helper) -> None:
-        """Give one helper the jobs at the back of the queue, one at a time."""
-        while (index := take(front=False)) is not None:
-            try:
-                results[index] = helper.run(jobs[index], folder)
-            except BaseException as exc:  # re-raised by the thread that draws here
-                fail(exc)
+def figure_helpers_at_most(compute: ComputeOptions, n_jobs: int) -> int:
+    """The most helper processes a run may start for ``n_jobs`` figures: 0 when at most
+    one process may draw (:func:`figure_processes_at_most`), else that many (this process
+    then draws none). The memory estimate counts this many."""
+    n = figure_processes_at_most(compute, n_jobs)
+    return n if n >= 2 else 0
 
-    helpers: list[_Helper] = []
-    interrupted = False
-    try:
-        helpers = [_Helper() for _ in range(n_helpers)]
-        threads = [threading.Thread(target=keep_busy, args=(h,), daemon=True,
-                                    name=f"covergrid-figures-{n}")
-                   for n, h in enumerate(helpers)]
-        for thread in threads:
-            thread.start()
-        while (index := take(front=True)) is not None:
-            try:
-                results[index] = jobs[index].run(folder)
-            except Exception as exc:
-                fail(exc)
-        for thread in threads:
-            thread.join()
-    except BaseException:  # KeyboardInterrupt: stop the helpers too
-        interrupted = True
-        fail(KeyboardInterrupt())
-        raise
-    finally:
-        for helper in helpers:
-            helper.close(interrupted)
-    if errors:
-        raise errors[0]
-    return [p for files in results for p in files]
+
+def figure_helpers(study: ResolvedStudy) -> int:
+    """Helper processes a run starts, before computing, to draw its figures (0: this
+    process draws them after computing).
+
+    None when at most one process may draw (:func:`figure_helpers_at_most`:
+    ``compute.scheduler: synchronous``, ``compute.workers: 1``, one usable CPU or fewer than
+    2 x :data:`JOBS_PER_PROCESS` figures); otherwise one per CPU left idle by other work (the
+    CPU count less the 1-minute load average, rounded) and one for the CPU of this process,
+    which draws none; at least one and at most that bound,
+    and no more than the memory available holds (:data:`HELPER_BASE_BYTES` plus
+    :data:`HELPER_BYTES_PER_CELL` per cell each). This process then draws none: a helper
+    imports the drawing libraries and draws the ground tracks while the coverage is
+    computed (the coverage kernel leaves a core free part of the time), so even one helper
+    takes that work off the path from start to exit.
+    """
+    from covergrid.pipeline.resources import available_memory_bytes
+
+    at_most = figure_helpers_at_most(study.compute, figure_count(study))
+    if at_most == 0:
+        return 0
+    n = min(at_most, max(round(_idle_cpus(_usable_cpus())) + 1, 1))
+    available = available_memory_bytes()
+    if available is not None:
+        per_helper = HELPER_BASE_BYTES + HELPER_BYTES_PER_CELL * study.grid.n_cells
+        n = min(n, int(available // per_helper))
+    return max(n, 0)
 
 
 def write_figures(study: ResolvedStudy, ds, folder: Path,
-                  verdict: Mapping[str, Any] | None = None) -> list[Path]:
-    """Draw every figure of a computed study into ``folder`` (see the module docstring)."""
-    jobs = figure_jobs(study, ds, verdict)
-    return draw_figures(jobs, folder, workers=figure_workers(study, jobs))
+                  verdict: Mapping[str, Any] | None = None, *, pool=None,
+                  tracks: FigureJob | None = None) -> list[Path]:
+    """Draw every figure of a computed study into ``folder`` (see the module docstring).
+
+    ``pool`` (a :class:`~covergrid.pipeline.figure_pool.FigurePool`) draws them, with
+    ``tracks`` the ground-track job already submitted to it (:func:`track_job`); without one
+    a pool of :func:`figure_helpers` helpers is made here.
+    """
+    jobs = figure_jobs(study, ds, verdict, tracks=tracks)
+    if pool is not None:
+        pool.submit(jobs, folder)
+        return pool.collect(jobs)
+    return draw_figures(jobs, folder, workers=max(figure_helpers(study), 1))

@@ -39,7 +39,8 @@ from covergrid.pipeline.figures import (
     HELPER_BYTES_PER_CELL,
     MAX_TRACKS,
     TRACK_SAMPLES,
-    figure_processes_at_most,
+    figure_count,
+    figure_helpers_at_most,
 )
 from covergrid.study.build import as_resolved, trade_orbits
 
@@ -253,10 +254,10 @@ def _figures_bytes(study: ResolvedStudy, n_sat: int, cells: int) -> int:
     process, and every helper process that may draw (pipeline.figures: each holds its
     interpreter and libraries, HELPER_BASE_BYTES, and HELPER_BYTES_PER_CELL a cell; the same
     per-cell figure holds for this process)."""
-    processes = figure_processes_at_most(study.compute, _map_count(study) + 2)
+    helpers = figure_helpers_at_most(study.compute, figure_count(study))
     return (min(n_sat, MAX_TRACKS) * TRACK_SAMPLES * TRACK_BYTES_PER_SAMPLE
             + n_sat * PLANE_BYTES_PER_SATELLITE + cells * HELPER_BYTES_PER_CELL
-            + (processes - 1) * (HELPER_BASE_BYTES + cells * HELPER_BYTES_PER_CELL))
+            + helpers * (HELPER_BASE_BYTES + cells * HELPER_BYTES_PER_CELL))
 
 
 def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
@@ -344,7 +345,7 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     row_samples = float(np.sum(_footprint_rows(elements.a_km, study.sensor, study))) * n_steps
     compute_s = _kernel_s(visits, row_samples, cells, study.sensor,
                           study.refine_transitions) / running
-    n_maps = _map_count(study) if maps else 0
+    n_maps = figure_count(study) - 2 if maps else 0
     figures_s = (n_maps * (MAP_S + cells * MAP_S_PER_CELL) + 2 * FIGURE_S) if maps else 0.0
     available = available_memory_bytes()
     limit = (int(study.compute.memory_limit_gb * 1e9) if study.compute.memory_limit_gb
@@ -378,11 +379,6 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
         "memory_limit_bytes": limit,
         "limits": {"max_samples": MAX_SAMPLES, "max_satellite_samples": MAX_SATELLITE_SAMPLES},
     }
-
-
-def _map_count(study: ResolvedStudy) -> int:
-    """Metric maps drawn: one per metric, one per fold for nfold_fraction."""
-    return sum(study.nfold_max if m == "nfold_fraction" else 1 for m in study.maps.metrics)
 
 
 def _check_work(study: ResolvedStudy, n_sat_max: int, step_s: float | None = None,

@@ -24,6 +24,7 @@ earlier results as they were, and a run with other maps (or none) leaves no old 
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import datetime as _dt
 from dataclasses import dataclass, field
@@ -126,10 +127,15 @@ def summarise_study(study: ResolvedStudy, ds, targets: dict | None = None) -> di
 
 def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = True,
                       summary: dict | None = None, report: bool = True,
-                      targets: dict | None = None) -> tuple[list[Path], dict]:
+                      targets: dict | None = None, figures=None,
+                      tracks=None) -> tuple[list[Path], dict]:
     """Write every output file of a computed study into ``folder`` (a staging folder):
     the data files (with point targets, their tables and variables), the figures (``maps``)
     and last ``report.html`` (``report``), which embeds the figures written before it.
+
+    With ``figures``, a :class:`~covergrid.pipeline.figure_pool.FigurePool` (and ``tracks``,
+    the ground-track job already given to it), the figures are queued first and drawn by its
+    helpers while this process writes the data files.
 
     Returns
     -------
@@ -144,6 +150,12 @@ def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = Tr
         from covergrid.pipeline.target_outputs import target_dataset
 
         ds = ds.merge(target_dataset(study, targets))
+    figure_jobs = None
+    if maps and figures is not None:
+        from covergrid.pipeline.figures import figure_jobs as list_figures
+
+        figure_jobs = list_figures(study, ds, summary.get("requirement"), tracks=tracks)
+        figures.submit(figure_jobs, folder)  # drawn by the helpers while the data are written
     files = [
         io.write_netcdf(ds, folder / "coverage.nc"),
         io.write_json(summary, folder / "summary.json"),
@@ -155,9 +167,12 @@ def write_study_files(study: ResolvedStudy, ds, folder: Path, *, maps: bool = Tr
 
         files += write_target_tables(study, targets, folder)
     if maps:
-        from covergrid.pipeline.figures import write_figures
+        if figure_jobs is not None:
+            files += figures.collect(figure_jobs)
+        else:
+            from covergrid.pipeline.figures import write_figures
 
-        files += write_figures(study, ds, folder, summary.get("requirement"))
+            files += write_figures(study, ds, folder, summary.get("requirement"))
         if targets is not None and study.targets is not None:
             from covergrid.pipeline.target_outputs import write_target_maps
 
@@ -255,15 +270,42 @@ def run_study(study: Study | ResolvedStudy, out_dir: str | Path | None = None, *
         ds = _compute(resolved, progress)
         targets = _compute_targets(resolved, progress)
         return RunResult(ds, summarise_study(resolved, ds, targets), targets=targets)
-    with io.ResultFolder(out_dir, resolved.name) as folder:  # taken before computing
+    with (io.ResultFolder(out_dir, resolved.name) as folder,  # taken before computing
+          _figure_pool(resolved, maps) as pool):
+        tracks = None
+        if pool is not None:  # the ground tracks need no coverage: drawn while computing
+            from covergrid.pipeline.figures import track_job
+
+            tracks = track_job(resolved)
+            pool.submit([tracks], folder.path)
         ds = _compute(resolved, progress)
         targets = _compute_targets(resolved, progress)
         summary = summarise_study(resolved, ds, targets)
         files, summary = write_study_files(resolved, ds, folder.path, maps=maps,
                                            summary=summary, report=report,
-                                           targets=targets)
+                                           targets=targets, figures=pool, tracks=tracks)
         files = [folder.final(f) for f in files]
     return RunResult(ds, summary, folder.target, files, targets)
+
+
+@contextlib.contextmanager
+def _figure_pool(resolved: ResolvedStudy, maps: bool):
+    """The helper processes drawing a run's figures, started before computing so that
+    they import the drawing libraries and draw an empty map frame meanwhile; None when
+    this process draws them (:func:`covergrid.pipeline.figures.figure_helpers`) or no
+    figure is drawn."""
+    if not maps:
+        yield None
+        return
+    from covergrid.pipeline.figure_pool import FigurePool
+    from covergrid.pipeline.figures import figure_helpers, prepare_job
+
+    helpers = figure_helpers(resolved)
+    if helpers == 0:
+        yield None
+        return
+    with FigurePool(helpers, prepare=prepare_job(resolved)) as pool:
+        yield pool
 
 
 def _compute_targets(resolved: ResolvedStudy, progress: bool) -> dict | None:

@@ -34,6 +34,7 @@ __all__ = [
     "design_caption",
     "get_projection",
     "plot_metric_map",
+    "prepare_drawing",
     "save_metric_maps",
 ]
 
@@ -374,6 +375,35 @@ def plot_metric_map(ds, metric: str, *, ax=None, projection="robinson", title=No
                 caption = "\n".join(c for c in (caption, mark.caption()) if c)
             style.add_caption(fig, caption, key=key)
     return mesh
+
+
+def prepare_drawing(projection="robinson", folder=None) -> list[Path]:
+    """Load once in a process what every map in ``projection`` needs, drawing nothing kept.
+
+    An empty global map frame (coastlines, gridlines and their labels, a title and a caption)
+    is drawn and saved as PNG and PDF into memory: the fonts, the projected coastlines and
+    gridlines (remembered per process, :mod:`covergrid.render.gridlines`) and both
+    backends are then ready, so the first real map costs what the others do. A figure
+    helper process runs it while the coverage is computed. ``folder`` is ignored (the
+    signature of a figure job); returns no path.
+    """
+    import io
+
+    import matplotlib.pyplot as plt
+
+    crs = get_projection(projection)
+    with style.report_style():
+        fig = plt.figure(figsize=MAP_FIGSIZE_IN)
+        try:
+            ax = fig.add_axes((0.04, 0.19, 0.80, 0.72), projection=crs)
+            prepare_map_axes(ax, _projection_name(projection), np.array([-90.0, 90.0]))
+            ax.set_title(style.figure_title("Frame", "warm-up"), pad=8)
+            style.add_caption(fig, "Frame drawn to load fonts and projected lines.")
+            for fmt, dpi in (("png", style.DPI), ("pdf", style.PRINT_DPI)):
+                fig.savefig(io.BytesIO(), format=fmt, dpi=dpi)
+        finally:
+            plt.close(fig)
+    return []
 
 
 def _map_jobs(ds, metrics: Iterable[str], k):

@@ -354,6 +354,8 @@ def add_caption(fig, caption: str | None, *, footer: str = FOOTER, key=None) -> 
         Legend handles of the figure's marks (the requirement's hatching and threshold),
         drawn in one row between the drawing and the caption.
     """
+    from covergrid.render.gridlines import place_labels_once
+
     renderer = fig.canvas.get_renderer()
     dpi = fig.dpi
     caption_kw = {"ha": "left", "va": "bottom", "fontsize": _FONT_PT["caption"]}
@@ -386,6 +388,10 @@ def add_caption(fig, caption: str | None, *, footer: str = FOOTER, key=None) -> 
                                        / height_in), transform=fig.transFigure)
             text_top += _TEXT_GAP_IN + legend.get_window_extent(renderer).height / dpi
         boxes = [ax.get_tightbbox(renderer) for ax in fig.axes]
+        # map labels are placed by this first measure; growing the figure keeps every axes
+        # at its size, so they stay where they are (cartopy would place them again at every
+        # measure and draw)
+        place_labels_once(fig)
         boxes += [t.get_window_extent(renderer) for t in fig.texts
                   if id(t) not in own and t.get_text()]
         boxes = [b for b in boxes if b is not None and b.width > 0]
