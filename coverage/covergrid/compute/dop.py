@@ -80,6 +80,20 @@ _N_SUMS = 10
 #: singular (DOP above about 10^6): infinite DOP.
 _SINGULAR = 1e-12
 
+# A row's working values are held in tiles of _TILE columns: per tile, _T_ROWS rows of
+# _TILE lanes (the geometry sums, cos and sin of the longitude, the statistics, the DOP^2),
+# all in one flat array, so that every access in the vector loops is a constant offset from
+# one base and the compiler needs no run-time overlap checks (with one array per row, those
+# checks and the loop set-up cost more than the arithmetic of a run of ~90 cells).
+_TILE = 8
+_T_COS = 10
+_T_SIN = 11
+_T_STATS = 12
+_T_DOP2 = _T_STATS + N_STATS
+_T_ROWS = _T_DOP2 + 5
+_U8 = np.uint64(_TILE)
+_UW = np.uint64(_T_ROWS * _TILE)
+
 def new_dop_state(n_cells: int, n_sat: int) -> dict[str, np.ndarray]:
     """Allocate the DOP state of one latitude band (``n_cells`` = rows x columns).
 
@@ -131,54 +145,42 @@ def _dop_squares(mxx, mxy, mxz, myy, myz, mzz, bx, by, bz, n, ex, ey, ez):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def _fold_row(sums, cos_lon, sin_lon, cl, sl, dop2, stats, base, lo, hi, pdop2_ok):
-    """The DOPs of a row's cells in columns [lo, hi) from their geometry sums, folded into
-    their statistics (count without a fix, with a fix, PDOP at or below the threshold, sums
-    of DOP, largest DOP^2); ``dop2`` (5, n_lon) receives the squares for the histograms.
-    Loops over slices: vectorisable."""
-    n = hi - lo
-    c_lon = cos_lon[lo:hi]
-    s_lon = sin_lon[lo:hi]
-    g_out = dop2[0, lo:hi]
-    p_out = dop2[1, lo:hi]
-    h_out = dop2[2, lo:hi]
-    v_out = dop2[3, lo:hi]
-    t_out = dop2[4, lo:hi]
-    m0 = sums[0, lo:hi]
-    m1 = sums[1, lo:hi]
-    m2 = sums[2, lo:hi]
-    m3 = sums[3, lo:hi]
-    m4 = sums[4, lo:hi]
-    m5 = sums[5, lo:hi]
-    m6 = sums[6, lo:hi]
-    m7 = sums[7, lo:hi]
-    m8 = sums[8, lo:hi]
-    m9 = sums[9, lo:hi]
-    no_fix = stats[_N_NO_FIX, base + lo: base + hi]
-    fixes = stats[_N_FINITE, base + lo: base + hi]
-    good = stats[_N_PDOP_OK, base + lo: base + hi]
-    for j in range(n):
-        count = m9[j]
-        g2, p2, h2, v2, t2 = _dop_squares(m0[j], m1[j], m2[j], m3[j], m4[j], m5[j], m6[j],
-                                          m7[j], m8[j], count, cl * c_lon[j], cl * s_lon[j],
-                                          sl)
-        fin = p2 < math.inf
-        no_fix[j] += 1.0 if count < 4.0 else 0.0
-        fixes[j] += 1.0 if fin else 0.0
-        good[j] += 1.0 if fin & (p2 <= pdop2_ok) else 0.0
-        g_out[j] = g2
-        p_out[j] = p2
-        h_out[j] = h2
-        v_out[j] = v2
-        t_out[j] = t2
-    for k in range(5):
-        sq = dop2[k, lo:hi]
-        total = stats[_SUM + k, base + lo: base + hi]
-        top = stats[_MAX2 + k, base + lo: base + hi]
-        for j in range(n):
-            v = sq[j]
-            total[j] += math.sqrt(v) if v < math.inf else 0.0
-            top[j] = max(top[j], v)
+def _fold_tiles(f, t_lo, t_hi, cl, sl, pdop2_ok):
+    """The DOPs of the cells of tiles [t_lo, t_hi) of a row from their geometry sums, folded
+    into their statistics (count without a fix, with a fix, PDOP at or below the threshold,
+    sums of DOP, largest DOP^2); the squares are left in the tiles for the histograms.
+    Branch-free over a tile's lanes: vectorised."""
+    for t in range(np.uint64(t_lo), np.uint64(t_hi)):
+        o = t * _UW
+        for lane in range(_U8):
+            i = o + lane
+            count = f[i + np.uint64(72)]
+            g2, p2, h2, v2, t2 = _dop_squares(
+                f[i], f[i + np.uint64(8)], f[i + np.uint64(16)], f[i + np.uint64(24)],
+                f[i + np.uint64(32)], f[i + np.uint64(40)], f[i + np.uint64(48)],
+                f[i + np.uint64(56)], f[i + np.uint64(64)], count,
+                cl * f[i + np.uint64(8 * _T_COS)], cl * f[i + np.uint64(8 * _T_SIN)], sl)
+            fin = p2 < math.inf
+            st = i + np.uint64(8 * _T_STATS)
+            f[st + np.uint64(8 * _N_NO_FIX)] += 1.0 if count < 4.0 else 0.0
+            f[st + np.uint64(8 * _N_FINITE)] += 1.0 if fin else 0.0
+            f[st + np.uint64(8 * _N_PDOP_OK)] += 1.0 if fin & (p2 <= pdop2_ok) else 0.0
+            d = i + np.uint64(8 * _T_DOP2)
+            f[d] = g2
+            f[d + np.uint64(8)] = p2
+            f[d + np.uint64(16)] = h2
+            f[d + np.uint64(24)] = v2
+            f[d + np.uint64(32)] = t2
+            f[st + np.uint64(8 * _SUM)] += math.sqrt(g2) if g2 < math.inf else 0.0
+            f[st + np.uint64(8 * _SUM + 8)] += math.sqrt(p2) if p2 < math.inf else 0.0
+            f[st + np.uint64(8 * _SUM + 16)] += math.sqrt(h2) if h2 < math.inf else 0.0
+            f[st + np.uint64(8 * _SUM + 24)] += math.sqrt(v2) if v2 < math.inf else 0.0
+            f[st + np.uint64(8 * _SUM + 32)] += math.sqrt(t2) if t2 < math.inf else 0.0
+            f[st] = max(f[st], g2)
+            f[st + np.uint64(8)] = max(f[st + np.uint64(8)], p2)
+            f[st + np.uint64(16)] = max(f[st + np.uint64(16)], h2)
+            f[st + np.uint64(24)] = max(f[st + np.uint64(24)], v2)
+            f[st + np.uint64(32)] = max(f[st + np.uint64(32)], t2)
 
 
 @numba.njit(cache=True)
@@ -222,57 +224,48 @@ def dop_values(lines_of_sight: np.ndarray, up: np.ndarray) -> dict[str, float]:
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def _accumulate(sums, j_start, j_end, x, y, z, rs2, rho_r, zc, cl, sl, cos_lon, sin_lon,
-                sin2_el, cos2_eta, range2):
-    """Add the lines of sight of one satellite to the geometry sums of columns
-    [j_start, j_end) of a row, where it is in view (the coverage kernel's limits: elevation
+def _accumulate(f, t_start, t_end, x, y, z, rs2, rho_r, zc, cl, sl, sin2_el, cos2_eta,
+                range2):
+    """Add the lines of sight of one satellite to the geometry sums of the cells of tiles
+    [t_start, t_end) of a row, where it is in view (the coverage kernel's limits: elevation
     above the ellipsoid-normal horizon, slant range, off-nadir angle).
 
-    One branch-free loop over slices, the form numba's compiler runs on vector units: a
-    cell out of view adds exact zeros, which leaves its sums as they were. (One loop holds
-    the lines of sight in registers; splitting it, with the lines of sight stored between
-    loops, measured slower.)
+    Branch-free over a tile's lanes, so that it runs on vector units: a cell out of view
+    adds exact zeros, which leaves its sums as they were (whole tiles are tested, so cells
+    beside the candidate run are tested exactly too and add nothing).
     """
-    n = j_end - j_start
-    c_lon = cos_lon[j_start:j_end]
-    s_lon = sin_lon[j_start:j_end]
-    s_xx = sums[0, j_start:j_end]
-    s_xy = sums[1, j_start:j_end]
-    s_xz = sums[2, j_start:j_end]
-    s_yy = sums[3, j_start:j_end]
-    s_yz = sums[4, j_start:j_end]
-    s_zz = sums[5, j_start:j_end]
-    s_x = sums[6, j_start:j_end]
-    s_y = sums[7, j_start:j_end]
-    s_z = sums[8, j_start:j_end]
-    s_n = sums[9, j_start:j_end]
     dz = z - zc
     use_range = range2 >= 0.0
     use_cone = cos2_eta >= 0.0
-    for i in range(n):
-        dx = x - rho_r * c_lon[i]
-        dy = y - rho_r * s_lon[i]
-        up = cl * (dx * c_lon[i] + dy * s_lon[i]) + sl * dz
-        d2 = dx * dx + dy * dy + dz * dz
-        nd = x * dx + y * dy + z * dz
-        ok = (up >= 0.0) & (up * up >= sin2_el * d2)
-        ok &= (~use_range) | (d2 <= range2)
-        ok &= (~use_cone) | ((nd >= 0.0) & (nd * nd >= cos2_eta * rs2 * d2))
-        inv = 1.0 / math.sqrt(d2)
-        inv = inv if ok else 0.0
-        ux = dx * inv
-        uy = dy * inv
-        uz = dz * inv
-        s_xx[i] += ux * ux
-        s_xy[i] += ux * uy
-        s_xz[i] += ux * uz
-        s_yy[i] += uy * uy
-        s_yz[i] += uy * uz
-        s_zz[i] += uz * uz
-        s_x[i] += ux
-        s_y[i] += uy
-        s_z[i] += uz
-        s_n[i] += 1.0 if ok else 0.0
+    for t in range(np.uint64(t_start), np.uint64(t_end)):
+        o = t * _UW
+        for lane in range(_U8):
+            i = o + lane
+            c_lon = f[i + np.uint64(8 * _T_COS)]
+            s_lon = f[i + np.uint64(8 * _T_SIN)]
+            dx = x - rho_r * c_lon
+            dy = y - rho_r * s_lon
+            up = cl * (dx * c_lon + dy * s_lon) + sl * dz
+            d2 = dx * dx + dy * dy + dz * dz
+            nd = x * dx + y * dy + z * dz
+            ok = (up >= 0.0) & (up * up >= sin2_el * d2)
+            ok &= (~use_range) | (d2 <= range2)
+            ok &= (~use_cone) | ((nd >= 0.0) & (nd * nd >= cos2_eta * rs2 * d2))
+            inv = 1.0 / math.sqrt(d2)
+            inv = inv if ok else 0.0
+            ux = dx * inv
+            uy = dy * inv
+            uz = dz * inv
+            f[i] += ux * ux
+            f[i + np.uint64(8)] += ux * uy
+            f[i + np.uint64(16)] += ux * uz
+            f[i + np.uint64(24)] += uy * uy
+            f[i + np.uint64(32)] += uy * uz
+            f[i + np.uint64(40)] += uz * uz
+            f[i + np.uint64(48)] += ux
+            f[i + np.uint64(56)] += uy
+            f[i + np.uint64(64)] += uz
+            f[i + np.uint64(72)] += 1.0 if ok else 0.0
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
@@ -315,17 +308,17 @@ def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, n_cir
     sin2_el = math.sin(el_min_rad) ** 2
     cos2_eta = math.cos(eta_max_rad) ** 2 if eta_max_rad > 0.0 else -1.0
     range2 = range_max_km * range_max_km if range_max_km > 0.0 else -1.0
-    cos_lon = np.empty(n_lon)
-    sin_lon = np.empty(n_lon)
-    for j in range(n_lon):
+    n_tiles = (n_lon + _TILE - 1) // _TILE
+    w = _T_ROWS * _TILE
+    f = np.zeros(n_tiles * w)  # the row's tiles (see _TILE)
+    bits = f.view(np.int64)
+    for j in range(n_tiles * _TILE):  # lanes past n_lon: junk cells, never read out
         lc = lon0 + (j + 0.5) * dlon
-        cos_lon[j] = math.cos(lc)
-        sin_lon[j] = math.sin(lc)
+        at = (j // _TILE) * w + j % _TILE
+        f[at + _TILE * _T_COS] = math.cos(lc)
+        f[at + _TILE * _T_SIN] = math.sin(lc)
     sin_psi = np.sin(psi)
     cos_psi = np.cos(psi)
-    sums = np.empty((_N_SUMS, n_lon))
-    dop2 = np.empty((len(DOP_KINDS), n_lon))
-    bits = dop2.view(np.int64)
     # per sample and satellite: lon, sin psi, cos psi, cos lambda, first row, end row
     sat = np.empty((n_block, n_sat, 6))
     for b in range(n_block):
@@ -359,8 +352,14 @@ def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, n_cir
         sl = sin_lat[r]
         cl = cos_lat[r]
         base = r * n_lon
+        t_lo = lo // _TILE
+        t_hi = (hi + _TILE - 1) // _TILE
+        for q in range(N_STATS):  # the row's statistics into its tiles
+            for j in range(lo, hi):
+                f[(j // _TILE) * w + (_T_STATS + q) * _TILE + j % _TILE] = stats[q, base + j]
         for b in range(n_block):
-            sums[:, lo:hi] = 0.0
+            for t in range(t_lo, t_hi):
+                f[t * w: t * w + _N_SUMS * _TILE] = 0.0
             for s in range(n_sat):
                 if not sat[b, s, 4] <= r < sat[b, s, 5]:
                     continue
@@ -375,27 +374,36 @@ def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, n_cir
                     j_first = 0
                     count = n_circle
                 else:
-                    w = math.acos(min(cw, 1.0))
-                    j_first = int(math.floor((sat[b, s, 0] - w - lon0) / dlon - 0.5))
-                    j_last = int(math.floor((sat[b, s, 0] + w - lon0) / dlon - 0.5)) + 1
+                    acw = math.acos(min(cw, 1.0))
+                    j_first = int(math.floor((sat[b, s, 0] - acw - lon0) / dlon - 0.5))
+                    j_last = int(math.floor((sat[b, s, 0] + acw - lon0) / dlon - 0.5)) + 1
                     count = min(j_last - j_first + 1, n_circle)
                 # the candidates as at most two runs of whole columns on the circle
-                # (wrap-around), each cut to the row's computed columns
+                # (wrap-around), each cut to the row's computed columns, as runs of tiles;
+                # runs sharing a tile are joined, so that no cell is counted twice
                 j0 = j_first % n_circle
-                start = max(j0, lo)
-                end = min(j0 + count, n_circle, hi)
-                if start < end:
-                    _accumulate(sums, start, end, x, y, z, rs2, rho_r, zc, cl, sl,
-                                cos_lon, sin_lon, sin2_el, cos2_eta, range2)
-                end = min(j0 + count - n_circle, hi)
-                if lo < end:
-                    _accumulate(sums, lo, end, x, y, z, rs2, rho_r, zc, cl, sl,
-                                cos_lon, sin_lon, sin2_el, cos2_eta, range2)
-            _fold_row(sums, cos_lon, sin_lon, cl, sl, dop2, stats, base, lo, hi, pdop2_ok)
+                a0 = max(j0, lo) // _TILE
+                a1 = (min(j0 + count, n_circle, hi) + _TILE - 1) // _TILE
+                b1 = (min(j0 + count - n_circle, hi) + _TILE - 1) // _TILE
+                if b1 > t_lo:  # the wrapped run [lo, ...)
+                    if a0 < a1 and b1 >= a0:
+                        a0 = t_lo
+                        a1 = max(a1, b1)
+                    else:
+                        _accumulate(f, t_lo, b1, x, y, z, rs2, rho_r, zc, cl, sl, sin2_el,
+                                    cos2_eta, range2)
+                if a0 < a1:
+                    _accumulate(f, a0, a1, x, y, z, rs2, rho_r, zc, cl, sl, sin2_el,
+                                cos2_eta, range2)
+            _fold_tiles(f, t_lo, t_hi, cl, sl, pdop2_ok)
             for k in range(len(DOP_KINDS)):
                 for j in range(lo, hi):
-                    idx = (bits[k, j] >> HIST_SHIFT) - HIST_BASE + 1
+                    at = (j // _TILE) * w + (_T_DOP2 + k) * _TILE + j % _TILE
+                    idx = (bits[at] >> HIST_SHIFT) - HIST_BASE + 1
                     hist[base + j, k, min(max(idx, 0), N_BINS - 1)] += 1
+        for q in range(N_STATS):  # and back
+            for j in range(lo, hi):
+                stats[q, base + j] = f[(j // _TILE) * w + (_T_STATS + q) * _TILE + j % _TILE]
 
 
 def run_dop_band(state: dict[str, np.ndarray], pos_km: np.ndarray, rows: dict[str, np.ndarray],
