@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from conftest import cell_centres, visibility
-from covergrid.compute.dop import dop_values
+from covergrid.compute.dop import column_spans, dop_values
 from covergrid.compute.dop_spec import N_BINS, DopSpec
 from covergrid.compute.engine import compute_coverage
 from covergrid.compute.grid import GridSpec
@@ -243,3 +243,13 @@ sizing:
     by_total = {r["total"]: r for r in sized.designs}
     assert by_total[best]["meets"]
     assert all(not r["meets"] for t, r in by_total.items() if t < best)
+
+
+def test_each_row_computes_the_span_of_its_cells_in_the_region():
+    mask = np.array([[False, True, False, True, False],
+                     [False, False, False, False, False],
+                     [True, True, True, True, True]])
+    lo, hi = column_spans(mask, 3, 5)
+    assert lo.tolist() == [1, 0, 0] and hi.tolist() == [4, 0, 5]  # row 1: none, skipped
+    lo, hi = column_spans(None, 3, 5)
+    assert lo.tolist() == [0, 0, 0] and hi.tolist() == [5, 5, 5]

@@ -106,6 +106,22 @@ def test_the_time_estimate_follows_its_calibration(tmp_path):
     assert est["seconds"] == est["compute_s"] + est["figures_s"]
 
 
+def test_the_time_estimate_counts_the_dop_work(tmp_path):
+    """A dop: section adds its work to the time: per visibility (the line of sight added to
+    the cell's geometry sums) and per cell and sample (the DOPs, statistics, histograms)."""
+    plain = resources.estimate(_resolved(tmp_path))
+    assert plain["dop_s"] == 0.0
+    est = resources.estimate(_resolved(tmp_path, "dop:\n  pdop_threshold: 6\n"))
+    assert est["visits"] == plain["visits"]
+    want = (est["visits"] * resources.DOP_S_PER_VISIT
+            + est["cells"] * est["steps"] * resources.DOP_S_PER_CELL_SAMPLE
+            ) / est["tasks_at_once"]
+    assert est["dop_s"] == pytest.approx(want, rel=1e-12)
+    assert est["dop_s"] > 0.0
+    assert est["compute_s"] == pytest.approx(plain["compute_s"] + want, rel=1e-12)
+    assert est["memory_parts"]["tasks"] > plain["memory_parts"]["tasks"]
+
+
 def test_the_work_limits_name_the_step(tmp_path, monkeypatch):
     study = _resolved(tmp_path)  # 6 satellites x 120 samples
     monkeypatch.setattr(resources, "MAX_SATELLITE_SAMPLES", 719)

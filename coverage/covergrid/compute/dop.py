@@ -63,7 +63,8 @@ from covergrid.compute.dop_spec import (
 from covergrid.compute.footprint import central_angle_bound
 from covergrid.compute.metrics import DOP_KINDS, DOP_METRICS
 
-__all__ = ["advance_dop", "dop_metrics", "dop_values", "new_dop_state", "run_dop_band"]
+__all__ = ["advance_dop", "column_spans", "dop_metrics", "dop_values", "new_dop_state",
+           "run_dop_band"]
 
 # Per-cell statistics, one row each (rows x cells): the largest DOP^2 of each kind, the sum
 # of DOP over the samples where it is finite, those samples, the samples with PDOP at or
@@ -79,14 +80,29 @@ _N_SUMS = 10
 #: singular (DOP above about 10^6): infinite DOP.
 _SINGULAR = 1e-12
 
+# A row's working values are held in tiles of _TILE columns: per tile, _T_ROWS rows of
+# _TILE lanes (the geometry sums, cos and sin of the longitude, the statistics, the DOP^2),
+# all in one flat array, so that every access in the vector loops is a constant offset from
+# one base and the compiler needs no run-time overlap checks (with one array per row, those
+# checks and the loop set-up cost more than the arithmetic of a run of ~90 cells).
+_TILE = 8
+_T_COS = 10
+_T_SIN = 11
+_T_STATS = 12
+_T_DOP2 = _T_STATS + N_STATS
+_T_ROWS = _T_DOP2 + 5
+_U8 = np.uint64(_TILE)
+_UW = np.uint64(_T_ROWS * _TILE)
+
 def new_dop_state(n_cells: int, n_sat: int) -> dict[str, np.ndarray]:
     """Allocate the DOP state of one latitude band (``n_cells`` = rows x columns).
 
-    Returns ``stats`` (13, n_cells) float64, ``hist`` (5, N_BINS, n_cells) uint32 and a
+    Returns ``stats`` (13, n_cells) float64, ``hist`` (n_cells, 5, N_BINS) uint32 (each
+    cell's histograms together, so that a row's cells touch few cache lines) and a
     per-satellite cache of the footprint bound.
     """
     stats = np.zeros((N_STATS, n_cells))
-    return {"stats": stats, "hist": np.zeros((len(DOP_KINDS), N_BINS, n_cells), np.uint32),
+    return {"stats": stats, "hist": np.zeros((n_cells, len(DOP_KINDS), N_BINS), np.uint32),
             "bound_cache": np.full((n_sat, 2), -1.0)}
 
 
@@ -129,41 +145,42 @@ def _dop_squares(mxx, mxy, mxz, myy, myz, mzz, bx, by, bz, n, ex, ey, ez):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def _fold_row(sums, cos_lon, sin_lon, cl, sl, dop2, stats, base, pdop2_ok):
-    """Each cell's DOPs of one row from its geometry sums, folded into its statistics
-    (count without a fix, with a fix, PDOP at or below the threshold, sums of DOP, largest
-    DOP^2); ``dop2`` (5, n_lon) receives the squares for the histograms. Vectorisable."""
-    n_lon = cos_lon.shape[0]
-    g_out = dop2[0]
-    p_out = dop2[1]
-    h_out = dop2[2]
-    v_out = dop2[3]
-    t_out = dop2[4]
-    no_fix = stats[_N_NO_FIX, base: base + n_lon]
-    fixes = stats[_N_FINITE, base: base + n_lon]
-    good = stats[_N_PDOP_OK, base: base + n_lon]
-    for j in range(n_lon):
-        n = sums[9, j]
-        g2, p2, h2, v2, t2 = _dop_squares(
-            sums[0, j], sums[1, j], sums[2, j], sums[3, j], sums[4, j], sums[5, j],
-            sums[6, j], sums[7, j], sums[8, j], n, cl * cos_lon[j], cl * sin_lon[j], sl)
-        fin = p2 < math.inf
-        no_fix[j] += 1.0 if n < 4.0 else 0.0
-        fixes[j] += 1.0 if fin else 0.0
-        good[j] += 1.0 if fin & (p2 <= pdop2_ok) else 0.0
-        g_out[j] = g2
-        p_out[j] = p2
-        h_out[j] = h2
-        v_out[j] = v2
-        t_out[j] = t2
-    for k in range(5):
-        sq = dop2[k]
-        total = stats[_SUM + k, base: base + n_lon]
-        top = stats[_MAX2 + k, base: base + n_lon]
-        for j in range(n_lon):
-            v = sq[j]
-            total[j] += math.sqrt(v) if v < math.inf else 0.0
-            top[j] = max(top[j], v)
+def _fold_tiles(f, t_lo, t_hi, cl, sl, pdop2_ok):
+    """The DOPs of the cells of tiles [t_lo, t_hi) of a row from their geometry sums, folded
+    into their statistics (count without a fix, with a fix, PDOP at or below the threshold,
+    sums of DOP, largest DOP^2); the squares are left in the tiles for the histograms.
+    Branch-free over a tile's lanes: vectorised."""
+    for t in range(np.uint64(t_lo), np.uint64(t_hi)):
+        o = t * _UW
+        for lane in range(_U8):
+            i = o + lane
+            count = f[i + np.uint64(72)]
+            g2, p2, h2, v2, t2 = _dop_squares(
+                f[i], f[i + np.uint64(8)], f[i + np.uint64(16)], f[i + np.uint64(24)],
+                f[i + np.uint64(32)], f[i + np.uint64(40)], f[i + np.uint64(48)],
+                f[i + np.uint64(56)], f[i + np.uint64(64)], count,
+                cl * f[i + np.uint64(8 * _T_COS)], cl * f[i + np.uint64(8 * _T_SIN)], sl)
+            fin = p2 < math.inf
+            st = i + np.uint64(8 * _T_STATS)
+            f[st + np.uint64(8 * _N_NO_FIX)] += 1.0 if count < 4.0 else 0.0
+            f[st + np.uint64(8 * _N_FINITE)] += 1.0 if fin else 0.0
+            f[st + np.uint64(8 * _N_PDOP_OK)] += 1.0 if fin & (p2 <= pdop2_ok) else 0.0
+            d = i + np.uint64(8 * _T_DOP2)
+            f[d] = g2
+            f[d + np.uint64(8)] = p2
+            f[d + np.uint64(16)] = h2
+            f[d + np.uint64(24)] = v2
+            f[d + np.uint64(32)] = t2
+            f[st + np.uint64(8 * _SUM)] += math.sqrt(g2) if g2 < math.inf else 0.0
+            f[st + np.uint64(8 * _SUM + 8)] += math.sqrt(p2) if p2 < math.inf else 0.0
+            f[st + np.uint64(8 * _SUM + 16)] += math.sqrt(h2) if h2 < math.inf else 0.0
+            f[st + np.uint64(8 * _SUM + 24)] += math.sqrt(v2) if v2 < math.inf else 0.0
+            f[st + np.uint64(8 * _SUM + 32)] += math.sqrt(t2) if t2 < math.inf else 0.0
+            f[st] = max(f[st], g2)
+            f[st + np.uint64(8)] = max(f[st + np.uint64(8)], p2)
+            f[st + np.uint64(16)] = max(f[st + np.uint64(16)], h2)
+            f[st + np.uint64(24)] = max(f[st + np.uint64(24)], v2)
+            f[st + np.uint64(32)] = max(f[st + np.uint64(32)], t2)
 
 
 @numba.njit(cache=True)
@@ -207,72 +224,58 @@ def dop_values(lines_of_sight: np.ndarray, up: np.ndarray) -> dict[str, float]:
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def _accumulate(sums, los, j_start, j_end, x, y, z, rs2, rho_r, zc, cl, sl, cos_lon, sin_lon,
-                sin2_el, cos2_eta, range2):
-    """Add the lines of sight of one satellite to the geometry sums of columns
-    [j_start, j_end) of a row, where it is in view (the coverage kernel's limits: elevation
+def _accumulate(f, t_start, t_end, x, y, z, rs2, rho_r, zc, cl, sl, sin2_el, cos2_eta,
+                range2):
+    """Add the lines of sight of one satellite to the geometry sums of the cells of tiles
+    [t_start, t_end) of a row, where it is in view (the coverage kernel's limits: elevation
     above the ellipsoid-normal horizon, slant range, off-nadir angle).
 
-    Branch-free, in short loops of few arrays each, so that they run on vector units: a
-    cell out of view adds exact zeros, which leaves its sums as they were. ``los`` (4, n_lon)
-    is scratch space.
+    Branch-free over a tile's lanes, so that it runs on vector units: a cell out of view
+    adds exact zeros, which leaves its sums as they were (whole tiles are tested, so cells
+    beside the candidate run are tested exactly too and add nothing).
     """
-    # loops over range(n) of slices: the form numba's compiler vectorises
-    n = j_end - j_start
-    c_lon = cos_lon[j_start:j_end]
-    s_lon = sin_lon[j_start:j_end]
-    ux = los[0, j_start:j_end]
-    uy = los[1, j_start:j_end]
-    uz = los[2, j_start:j_end]
-    w = los[3, j_start:j_end]
     dz = z - zc
     use_range = range2 >= 0.0
     use_cone = cos2_eta >= 0.0
-    for i in range(n):
-        dx = x - rho_r * c_lon[i]
-        dy = y - rho_r * s_lon[i]
-        up = cl * (dx * c_lon[i] + dy * s_lon[i]) + sl * dz
-        d2 = dx * dx + dy * dy + dz * dz
-        nd = x * dx + y * dy + z * dz
-        ok = (up >= 0.0) & (up * up >= sin2_el * d2)
-        ok &= (~use_range) | (d2 <= range2)
-        ok &= (~use_cone) | ((nd >= 0.0) & (nd * nd >= cos2_eta * rs2 * d2))
-        inv = 1.0 / math.sqrt(d2)
-        inv = inv if ok else 0.0
-        ux[i] = dx * inv
-        uy[i] = dy * inv
-        uz[i] = dz * inv
-        w[i] = 1.0 if ok else 0.0
-    # three loops of at most eight arrays each (more defeat the compiler's alias checks)
-    s_xx = sums[0, j_start:j_end]
-    s_xy = sums[1, j_start:j_end]
-    s_xz = sums[2, j_start:j_end]
-    for i in range(n):
-        s_xx[i] += ux[i] * ux[i]
-        s_xy[i] += ux[i] * uy[i]
-        s_xz[i] += ux[i] * uz[i]
-    s_yy = sums[3, j_start:j_end]
-    s_yz = sums[4, j_start:j_end]
-    s_zz = sums[5, j_start:j_end]
-    for i in range(n):
-        s_yy[i] += uy[i] * uy[i]
-        s_yz[i] += uy[i] * uz[i]
-        s_zz[i] += uz[i] * uz[i]
-    s_x = sums[6, j_start:j_end]
-    s_y = sums[7, j_start:j_end]
-    s_z = sums[8, j_start:j_end]
-    s_n = sums[9, j_start:j_end]
-    for i in range(n):
-        s_x[i] += ux[i]
-        s_y[i] += uy[i]
-        s_z[i] += uz[i]
-        s_n[i] += w[i]
+    for t in range(np.uint64(t_start), np.uint64(t_end)):
+        o = t * _UW
+        for lane in range(_U8):
+            i = o + lane
+            c_lon = f[i + np.uint64(8 * _T_COS)]
+            s_lon = f[i + np.uint64(8 * _T_SIN)]
+            dx = x - rho_r * c_lon
+            dy = y - rho_r * s_lon
+            up = cl * (dx * c_lon + dy * s_lon) + sl * dz
+            d2 = dx * dx + dy * dy + dz * dz
+            nd = x * dx + y * dy + z * dz
+            ok = (up >= 0.0) & (up * up >= sin2_el * d2)
+            ok &= (~use_range) | (d2 <= range2)
+            ok &= (~use_cone) | ((nd >= 0.0) & (nd * nd >= cos2_eta * rs2 * d2))
+            inv = 1.0 / math.sqrt(d2)
+            inv = inv if ok else 0.0
+            ux = dx * inv
+            uy = dy * inv
+            uz = dz * inv
+            f[i] += ux * ux
+            f[i + np.uint64(8)] += ux * uy
+            f[i + np.uint64(16)] += ux * uz
+            f[i + np.uint64(24)] += uy * uy
+            f[i + np.uint64(32)] += uy * uz
+            f[i + np.uint64(40)] += uz * uz
+            f[i + np.uint64(48)] += ux
+            f[i + np.uint64(56)] += uy
+            f[i + np.uint64(64)] += uz
+            f[i + np.uint64(72)] += 1.0 if ok else 0.0
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
 def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, n_circle,
-                el_min_rad, eta_max_rad, range_max_km, pdop2_ok, stats, hist, bound_cache):
+                col_lo, col_hi, el_min_rad, eta_max_rad, range_max_km, pdop2_ok, stats, hist,
+                bound_cache):
     """Fold a block of samples into one band's DOP state (see the module notes).
+
+    The loops run row by row and, in a row, sample by sample, so that the row's statistics
+    and the histogram lines its cells use stay in cache over the block.
 
     Parameters
     ----------
@@ -287,6 +290,10 @@ def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, n_cir
     n_circle : int
         Columns round the whole circle from ``lon0`` (equal to ``n_lon`` without longitude
         limits): the candidate columns are found on the circle and cut to the first n_lon.
+    col_lo, col_hi : ndarray, (n_rows,) int64
+        Each row's computed columns [col_lo, col_hi) (all of them without a region; the span
+        of the row's cells in the region with one; an empty span skips the row). Cells
+        outside the span keep an empty state.
     el_min_rad, eta_max_rad, range_max_km : float
         Visibility limits (the coverage kernel's); eta_max_rad <= 0 and range_max_km <= 0
         mean no limit.
@@ -301,19 +308,19 @@ def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, n_cir
     sin2_el = math.sin(el_min_rad) ** 2
     cos2_eta = math.cos(eta_max_rad) ** 2 if eta_max_rad > 0.0 else -1.0
     range2 = range_max_km * range_max_km if range_max_km > 0.0 else -1.0
-    cos_lon = np.empty(n_lon)
-    sin_lon = np.empty(n_lon)
-    for j in range(n_lon):
+    n_tiles = (n_lon + _TILE - 1) // _TILE
+    w = _T_ROWS * _TILE
+    f = np.zeros(n_tiles * w)  # the row's tiles (see _TILE)
+    bits = f.view(np.int64)
+    for j in range(n_tiles * _TILE):  # lanes past n_lon: junk cells, never read out
         lc = lon0 + (j + 0.5) * dlon
-        cos_lon[j] = math.cos(lc)
-        sin_lon[j] = math.sin(lc)
+        at = (j // _TILE) * w + j % _TILE
+        f[at + _TILE * _T_COS] = math.cos(lc)
+        f[at + _TILE * _T_SIN] = math.sin(lc)
     sin_psi = np.sin(psi)
     cos_psi = np.cos(psi)
-    sums = np.empty((_N_SUMS, n_lon))
-    los = np.empty((4, n_lon))
-    dop2 = np.empty((len(DOP_KINDS), n_lon))
-    bits = dop2.view(np.int64)
-    sat = np.empty((n_sat, 6))  # lon, sin psi, cos psi, cos lambda, first row, end row
+    # per sample and satellite: lon, sin psi, cos psi, cos lambda, first row, end row
+    sat = np.empty((n_block, n_sat, 6))
     for b in range(n_block):
         for s in range(n_sat):
             x = pos_km[s, b, 0]
@@ -325,72 +332,108 @@ def advance_dop(pos_km, rho, zr, sin_lat, cos_lat, psi, lon0, dlon, n_lon, n_cir
                 bound_cache[s, 1] = central_angle_bound(rs + 1e-3, el_min_rad, eta_max_rad,
                                                         range_max_km)
             lam = bound_cache[s, 1]
-            sat[s, 4] = 0.0
-            sat[s, 5] = 0.0
+            sat[b, s, 4] = 0.0
+            sat[b, s, 5] = 0.0
             if lam >= 0.0:
                 psi_s = math.asin(z / rs)
-                sat[s, 0] = math.atan2(y, x)
-                sat[s, 1] = z / rs
-                sat[s, 2] = math.cos(psi_s)
-                sat[s, 3] = math.cos(lam)
-                sat[s, 4] = np.searchsorted(psi, psi_s - lam)
-                sat[s, 5] = np.searchsorted(psi, psi_s + lam, side="right")
-        for r in range(n_rows):
-            sums[:, :] = 0.0
-            rho_r = rho[r]
-            zc = zr[r]
-            sl = sin_lat[r]
-            cl = cos_lat[r]
+                sat[b, s, 0] = math.atan2(y, x)
+                sat[b, s, 1] = z / rs
+                sat[b, s, 2] = math.cos(psi_s)
+                sat[b, s, 3] = math.cos(lam)
+                sat[b, s, 4] = np.searchsorted(psi, psi_s - lam)
+                sat[b, s, 5] = np.searchsorted(psi, psi_s + lam, side="right")
+    for r in range(n_rows):
+        lo = col_lo[r]
+        hi = col_hi[r]
+        if lo >= hi:
+            continue
+        rho_r = rho[r]
+        zc = zr[r]
+        sl = sin_lat[r]
+        cl = cos_lat[r]
+        base = r * n_lon
+        t_lo = lo // _TILE
+        t_hi = (hi + _TILE - 1) // _TILE
+        for q in range(N_STATS):  # the row's statistics into its tiles
+            for j in range(lo, hi):
+                f[(j // _TILE) * w + (_T_STATS + q) * _TILE + j % _TILE] = stats[q, base + j]
+        for b in range(n_block):
+            for t in range(t_lo, t_hi):
+                f[t * w: t * w + _N_SUMS * _TILE] = 0.0
             for s in range(n_sat):
-                if not sat[s, 4] <= r < sat[s, 5]:
+                if not sat[b, s, 4] <= r < sat[b, s, 5]:
                     continue
                 x = pos_km[s, b, 0]
                 y = pos_km[s, b, 1]
                 z = pos_km[s, b, 2]
                 rs2 = x * x + y * y + z * z
                 # candidate columns: cell centres within the bound's central angle
-                den = cos_psi[r] * sat[s, 2]
-                cw = (sat[s, 3] - sin_psi[r] * sat[s, 1]) / den if den > 1e-12 else -2.0
+                den = cos_psi[r] * sat[b, s, 2]
+                cw = (sat[b, s, 3] - sin_psi[r] * sat[b, s, 1]) / den if den > 1e-12 else -2.0
                 if cw <= -1.0:
                     j_first = 0
                     count = n_circle
                 else:
-                    w = math.acos(min(cw, 1.0))
-                    j_first = int(math.floor((sat[s, 0] - w - lon0) / dlon - 0.5))
-                    j_last = int(math.floor((sat[s, 0] + w - lon0) / dlon - 0.5)) + 1
+                    acw = math.acos(min(cw, 1.0))
+                    j_first = int(math.floor((sat[b, s, 0] - acw - lon0) / dlon - 0.5))
+                    j_last = int(math.floor((sat[b, s, 0] + acw - lon0) / dlon - 0.5)) + 1
                     count = min(j_last - j_first + 1, n_circle)
                 # the candidates as at most two runs of whole columns on the circle
-                # (wrap-around), each cut to the band's n_lon columns
+                # (wrap-around), each cut to the row's computed columns, as runs of tiles;
+                # runs sharing a tile are joined, so that no cell is counted twice
                 j0 = j_first % n_circle
-                first_end = min(j0 + count, n_circle, n_lon)
-                if j0 < first_end:
-                    _accumulate(sums, los, j0, first_end, x, y, z, rs2, rho_r, zc, cl, sl,
-                                cos_lon, sin_lon, sin2_el, cos2_eta, range2)
-                if j0 + count > n_circle:
-                    _accumulate(sums, los, 0, min(j0 + count - n_circle, n_lon), x, y, z, rs2,
-                                rho_r, zc, cl, sl, cos_lon, sin_lon, sin2_el, cos2_eta, range2)
-            base = r * n_lon
-            _fold_row(sums, cos_lon, sin_lon, cl, sl, dop2, stats, base, pdop2_ok)
+                a0 = max(j0, lo) // _TILE
+                a1 = (min(j0 + count, n_circle, hi) + _TILE - 1) // _TILE
+                b1 = (min(j0 + count - n_circle, hi) + _TILE - 1) // _TILE
+                if b1 > t_lo:  # the wrapped run [lo, ...)
+                    if a0 < a1 and b1 >= a0:
+                        a0 = t_lo
+                        a1 = max(a1, b1)
+                    else:
+                        _accumulate(f, t_lo, b1, x, y, z, rs2, rho_r, zc, cl, sl, sin2_el,
+                                    cos2_eta, range2)
+                if a0 < a1:
+                    _accumulate(f, a0, a1, x, y, z, rs2, rho_r, zc, cl, sl, sin2_el,
+                                cos2_eta, range2)
+            _fold_tiles(f, t_lo, t_hi, cl, sl, pdop2_ok)
             for k in range(len(DOP_KINDS)):
-                for j in range(n_lon):
-                    c = base + j
-                    idx = (bits[k, j] >> HIST_SHIFT) - HIST_BASE + 1
-                    idx = min(max(idx, 0), N_BINS - 1)
-                    hist[k, idx, c] += 1
+                for j in range(lo, hi):
+                    at = (j // _TILE) * w + (_T_DOP2 + k) * _TILE + j % _TILE
+                    idx = (bits[at] >> HIST_SHIFT) - HIST_BASE + 1
+                    hist[base + j, k, min(max(idx, 0), N_BINS - 1)] += 1
+        for q in range(N_STATS):  # and back
+            for j in range(lo, hi):
+                stats[q, base + j] = f[(j // _TILE) * w + (_T_STATS + q) * _TILE + j % _TILE]
 
 
 def run_dop_band(state: dict[str, np.ndarray], pos_km: np.ndarray, rows: dict[str, np.ndarray],
                  lon0_rad: float, dlon_rad: float, n_lon: int, el_min_rad: float,
                  eta_max_rad: float, range_max_km: float, spec: DopSpec,
-                 n_circle: int | None = None) -> None:
+                 n_circle: int | None = None, cells: np.ndarray | None = None) -> None:
     """Python entry point to :func:`advance_dop` with the state held in a dict
-    (``n_circle``: columns round the circle, default ``n_lon``)."""
+    (``n_circle``: columns round the circle, default ``n_lon``; ``cells``: the band's
+    computed cells as a (rows, n_lon) boolean mask, default all; each row computes the span
+    from its first to its last computed cell)."""
+    lo, hi = column_spans(cells, len(rows["rho_km"]), int(n_lon))
     advance_dop(np.ascontiguousarray(pos_km, dtype=np.float64), rows["rho_km"], rows["z_km"],
                 rows["sin_lat"], rows["cos_lat"], rows["psi_rad"], float(lon0_rad),
                 float(dlon_rad), int(n_lon), int(n_lon if n_circle is None else n_circle),
-                float(el_min_rad), float(eta_max_rad),
+                lo, hi, float(el_min_rad), float(eta_max_rad),
                 float(range_max_km), float(spec.pdop_threshold) ** 2, state["stats"],
                 state["hist"], state["bound_cache"])
+
+
+def column_spans(cells: np.ndarray | None, n_rows: int, n_lon: int
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """Each row's span [lo, hi) from its first to its last True column (0, 0 for a row
+    with none; every column without a mask), as int64 arrays."""
+    if cells is None:
+        return np.zeros(n_rows, np.int64), np.full(n_rows, n_lon, np.int64)
+    mask = np.asarray(cells, bool).reshape(n_rows, n_lon)
+    any_ = mask.any(axis=1)
+    lo = np.where(any_, np.argmax(mask, axis=1), 0).astype(np.int64)
+    hi = np.where(any_, n_lon - np.argmax(mask[:, ::-1], axis=1), 0).astype(np.int64)
+    return lo, hi
 
 
 def _bin_upper_dop(idx: np.ndarray) -> np.ndarray:
@@ -427,8 +470,8 @@ def dop_metrics(state: dict[str, np.ndarray], n_steps: int, *, q: float = 0.95
         mx = np.sqrt(stats[_MAX2 + k])
         with np.errstate(invalid="ignore", divide="ignore"):
             mean = np.where(n_finite > 0, stats[_SUM + k] / np.maximum(n_finite, 1.0), np.nan)
-        cum = np.cumsum(hist[k], axis=0, dtype=np.int64)  # (N_BINS, n_cells)
-        idx = np.argmax(cum >= target, axis=0)
+        cum = np.cumsum(hist[:, k], axis=1, dtype=np.int64)  # (n_cells, N_BINS)
+        idx = np.argmax(cum >= target, axis=1)
         pct = np.minimum(_bin_upper_dop(idx), mx)
         out[f"max_{kind}"] = mx
         out[f"mean_{kind}"] = mean

@@ -132,10 +132,11 @@ def _run_band(elements: Any, theta0_rad: float, step_s: float, n_steps: int,
                         min_off_nadir_rad=eta_min, look_side=side)
         if dop_state is not None and dop is not None and i0 < n_steps:
             # DOP is sampled (sample and hold): the span's end sample is not one of its own.
-            # It runs over the window's n_lon columns; cells outside a region are computed
-            # too and masked with the other metrics afterwards
+            # It runs over the window's n_lon columns, in each row from its first to its
+            # last cell in the region (the cells outside are masked afterwards)
             dop_module.run_dop_band(dop_state, pos[:, : n_steps - i0], geo, lon0, dlon, n_lon,
-                                    el_min, eta_max, range_max, dop, n_circle=n_circle)
+                                    el_min, eta_max, range_max, dop, n_circle=n_circle,
+                                    cells=None if mask is None else mask[r0:r1])
     kernel.close_band(state, n_steps)
     return state, dop_state
 

@@ -86,6 +86,15 @@ KERNEL_S_PER_CELL = 2.7e-6
 #: with a plain 45 deg cone, per estimated visit, one core, synchronous: 120 ns and 12 ns.
 KERNEL_S_PER_SIDE_CELL = 1.2e-7
 KERNEL_S_PER_SIDE_CELL_SAMPLED = 1.2e-8
+#: The dilution-of-precision work (covergrid.compute.dop) besides the kernel's: time per
+#: satellite-sample-cell visibility (its line of sight added to the cell's geometry sums)
+#: and per cell and sample (the DOPs, the statistics, the histograms) [s], one core.
+#: Measured side by side with the kernel on the DOP bench study (24 satellites at
+#: 20,200 km, 2 deg grid, 24 h at 60 s: 1.9e8 visibilities, 2.3e7 cell-samples) on the
+#: shared development machine under load, so a planning figure good to a factor of about 2:
+#: 0.27 s and 0.32 s of its 0.58 s.
+DOP_S_PER_VISIT = 1.4e-9
+DOP_S_PER_CELL_SAMPLE = 1.4e-8
 #: Time to draw and save a metric map (PNG and PDF) besides its cells, and any other
 #: figure [s], and per cell of a map [s]: measured 3 to 5 s a map on 1 and 0.25 deg grids
 #: and 0.5 s a figure on a 10 deg grid, on the shared development machine, with the render
@@ -220,6 +229,11 @@ def _kernel_s(visits: float, row_samples: float, cells: float,
             + cells * KERNEL_S_PER_CELL + side)
 
 
+def _dop_s(visits: float, cell_samples: float) -> float:
+    """One core's time for the DOP work counted [s] (see DOP_S_PER_VISIT)."""
+    return visits * DOP_S_PER_VISIT + cell_samples * DOP_S_PER_CELL_SAMPLE
+
+
 def _band_share(study: ResolvedStudy) -> float:
     """Share of the sphere's area within the grid's computed window (latitudes and
     longitudes; a region's cells outside its areas are counted, so the estimate errs high)."""
@@ -281,7 +295,9 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
         ``duration_s``, ``grid_rows``, ``grid_columns``, ``cells``, ``nfold_max``,
         ``bands``, ``tasks_at_once``, ``worker_processes``, ``visits`` (expected satellite
         x sample x cell visibilities: the kernel's work), ``seconds`` (estimated wall time:
-        ``compute_s`` plus ``figures_s``), ``memory_bytes`` (estimated peak) with
+        ``compute_s`` plus ``figures_s``; ``compute_s`` includes ``dop_s``, the
+        dilution-of-precision work, zero without a ``dop:`` section), ``memory_bytes``
+        (estimated peak) with
         ``memory_parts`` (baseline, results, writers, tasks, workers, figures),
         ``memory_available_bytes`` and ``memory_limit_bytes`` (the limit applied, or None),
         and ``limits`` (the work limits).
@@ -295,8 +311,8 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     :func:`covergrid.orbits.geometry.footprint` at the mean altitude. It is an order-of-
     magnitude figure for planning (eccentric orbits and strongly inclined regional grids
     deviate most). The time is the kernel's (visits, satellite x sample x footprint rows
-    and cells, each at its calibrated cost) shared over the tasks running at once, plus the
-    figures.
+    and cells, each at its calibrated cost) shared over the tasks running at once, plus,
+    with DOP, its work (per visibility and per cell and sample), plus the figures.
 
     The memory estimate adds a fixed baseline, 2.5 times the finished Dataset (dask holds
     the band results while it assembles the arrays, and the writers a half copy), per
@@ -343,8 +359,9 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     }
     memory = sum(parts.values())
     row_samples = float(np.sum(_footprint_rows(elements.a_km, study.sensor, study))) * n_steps
+    dop_s = _dop_s(visits, cells * n_steps) / running if dop else 0.0
     compute_s = _kernel_s(visits, row_samples, cells, study.sensor,
-                          study.refine_transitions) / running
+                          study.refine_transitions) / running + dop_s
     n_maps = figure_count(study) - 2 if maps else 0
     figures_s = (n_maps * (MAP_S + cells * MAP_S_PER_CELL) + 2 * FIGURE_S) if maps else 0.0
     available = available_memory_bytes()
@@ -371,6 +388,7 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
         "row_samples": row_samples,
         "seconds": compute_s + figures_s,
         "compute_s": compute_s,
+        "dop_s": dop_s,
         "figures_s": figures_s,
         "maps": maps,
         "memory_bytes": int(memory),
@@ -535,8 +553,9 @@ def estimate_trade(study: ResolvedStudy | Study, block: str) -> dict[str, Any]:
         "workers": processes * WORKER_PROCESS_BYTES,
         "rows": evaluations * columns * ROW_VALUE_BYTES,
     }
-    seconds = _kernel_s(visits, row_samples, evaluations * cells, study.sensor,
-                        study.refine_transitions) / tasks
+    seconds = (_kernel_s(visits, row_samples, evaluations * cells, study.sensor,
+                         study.refine_transitions)
+               + (_dop_s(visits, evaluations * cells * study.n_steps) if dop else 0.0)) / tasks
     available = available_memory_bytes()
     limit = (int(study.compute.memory_limit_gb * 1e9) if study.compute.memory_limit_gb
              else available)
