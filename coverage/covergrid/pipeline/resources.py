@@ -95,12 +95,17 @@ KERNEL_S_PER_SIDE_CELL_SAMPLED = 1.2e-8
 #: 0.27 s and 0.32 s of its 0.58 s.
 DOP_S_PER_VISIT = 1.4e-9
 DOP_S_PER_CELL_SAMPLE = 1.4e-8
-#: Time to draw and save a metric map (PNG and PDF) besides its cells, and any other
-#: figure [s], and per cell of a map [s]: measured 3 to 5 s a map on 1 and 0.25 deg grids
-#: and 0.5 s a figure on a 10 deg grid, on the shared development machine, with the render
-#: code of this version (issue 11 works on it).
-MAP_S = 2.5
-FIGURE_S = 0.5
+#: Time to draw and save a metric map (PNG and PDF) besides its cells, any other figure,
+#: and per cell of a map [s], plus the once-only start of drawing (matplotlib, cartopy,
+#: fonts, the projected coastline) [s]. Measured in one `make bench` run on the 2-core
+#: development machine (the 48/8/1 whole-process study, 1 deg grid, four maps and two other
+#: figures): 5.1 s from start to exit with the figures drawn by one process against 2.0 s
+#: without maps, i.e. 3.1 s of drawing, of which about 1.2 s the start; the per-cell term
+#: is from earlier runs on 1 and 0.25 deg grids. The sum errs high when helpers draw
+#: concurrently (4.0 s with two).
+MAP_S = 0.25
+FIGURE_S = 0.4
+FIGURE_START_S = 1.2
 MAP_S_PER_CELL = 2.0e-6
 
 # --- memory ---------------------------------------------------------------------------
@@ -363,7 +368,8 @@ def estimate(study: ResolvedStudy | Study, *, workers: int | None = None,
     compute_s = _kernel_s(visits, row_samples, cells, study.sensor,
                           study.refine_transitions) / running + dop_s
     n_maps = figure_count(study) - 2 if maps else 0
-    figures_s = (n_maps * (MAP_S + cells * MAP_S_PER_CELL) + 2 * FIGURE_S) if maps else 0.0
+    figures_s = (FIGURE_START_S + n_maps * (MAP_S + cells * MAP_S_PER_CELL) + 2 * FIGURE_S
+                 if maps else 0.0)
     available = available_memory_bytes()
     limit = (int(study.compute.memory_limit_gb * 1e9) if study.compute.memory_limit_gb
              else available)
